@@ -1,0 +1,47 @@
+"""The interface every energy model of chairbuild implements.
+
+A model is built for one molecule (fixed atoms and connectivity) and then evaluated at
+any number of geometries. Units at this boundary are always Å for coordinates,
+kJ/mol for energies and kJ mol^-1 Å^-1 for gradients; each model converts to its
+engine's units (nm for OpenMM, bohr/hartree for tblite) inside itself.
+"""
+
+from __future__ import annotations
+
+import abc
+
+import numpy as np
+
+__all__ = ["EnergyModel"]
+
+
+class EnergyModel(abc.ABC):
+    """Energy (and, where defined, gradient) of one molecule at given coordinates.
+
+    Attributes
+    ----------
+    name : str
+        Declared name of the method, e.g. ``"MMFF94"`` or ``"GFN2-xTB/ALPB(water)"``.
+    energy_unit : str
+        Always ``"kJ/mol"``.
+    length_unit : str
+        Always ``"angstrom"``.
+    has_gradient : bool
+        False for models whose energy is piecewise constant in the coordinates
+        (the additive increment scheme); :meth:`energy_and_gradient` then raises.
+    """
+
+    name: str = "abstract"
+    energy_unit: str = "kJ/mol"
+    length_unit: str = "angstrom"
+    has_gradient: bool = True
+
+    @abc.abstractmethod
+    def energy(self, coords: np.ndarray) -> float:
+        """Return the energy (kJ/mol) at ``coords`` (shape ``(n_atoms, 3)``, Å)."""
+
+    def energy_and_gradient(self, coords: np.ndarray) -> tuple[float, np.ndarray]:
+        """Return the energy (kJ/mol) and its gradient (kJ mol^-1 Å^-1, shape ``(n_atoms, 3)``)."""
+        from chairbuild.errors import ForceFieldError
+
+        raise ForceFieldError(f"energy model {self.name!r} provides no gradient")
