@@ -44,6 +44,16 @@ P_STANDARD = 1.0e5
 #: Default temperature, K.
 T_DEFAULT = 298.15
 
+#: Metres per Å (exact).
+ANGSTROM_TO_METRE = 1.0e-10
+#: J per kJ (exact).
+KJ_TO_J = 1000.0
+#: Wavenumber conversion: m^-1 per cm^-1 (exact).
+WAVENUMBER_CM_TO_M = 100.0
+#: Average molecular moment of inertia B_av of the quasi-RRHO free-rotor entropy, kg m^2
+#: (method parameter, Grimme, Chem. Eur. J. 2012, 18, 9955).
+QRRHO_B_AV = 1.0e-44
+
 
 def rt_kj(temperature: float) -> float:
     """Return RT in kJ/mol at ``temperature`` (K)."""

@@ -1,0 +1,666 @@
+"""Build starting conformers on purpose: every ring state, every substituent placement, every rotamer.
+
+How a starting structure is made
+--------------------------------
+1. **Ring states.** Each six-membered ring takes one of eight states: the two chairs
+   (endocyclic torsions ±55° alternating) and the six twist-boats (torsions
+   (a, −b, a, a, −b, a) with a = 31°, b = 65°, in its three rotations and two signs).
+   In a ring system of several rings, all chair combinations are built, plus each
+   combination in which exactly one ring is a twist-boat and the others are chairs.
+2. **Ideal ring-system core.** For each combination the ring-system atoms are placed by a
+   small least-squares fit to ideal geometry only (bond lengths from covalent radii,
+   angles 111° at sp3 and 120° at sp2 atoms, the target torsions; a double bond in a
+   ring gets a 0° torsion target). A combination the fusion cannot reach (the fit keeps
+   a torsion more than 40° from its target sign pattern, e.g. a flipped trans-decalin
+   ring) is dropped with a note.
+3. **Substituent placement.** Each ring atom's exocyclic bonds point along the two
+   tetrahedral directions (up and down) or, at an sp2 atom or a fusion atom, along the
+   one free direction. Every distinct assignment of the exocyclic neighbours to those
+   directions is built (heavy substituent up or down; on an invertible ring nitrogen
+   the substituent or hydrogen both ways). Assignments whose 3D stereochemistry
+   differs from the input's are discarded before any minimisation.
+4. **The rest of the molecule** is copied rigidly, branch by branch, from one ETKDG
+   template embedding (fixed seed), keeping the template's torsion about each
+   attachment bond; separate ring systems are attached as their own ideal cores.
+5. **Rotamers.** Every rotatable bond (:mod:`chairbuild.rings`) is set to each of its
+   starting values (sp3–sp3 staggered 60°, 180°, 300°; see
+   :func:`chairbuild.rings._staggered_angles` for bonds with sp2 ends). All-chair
+   states get the full product over bonds; states with a twist-boat get each rotor
+   varied one at a time (their rotamers matter less: they lie 20 kJ/mol or more above
+   the chairs in most rings). When the product exceeds ``max_rotamers`` (default 81),
+   the rotors nearest the rings are enumerated fully and the farther ones keep their
+   first value; a note says so.
+6. **Duplicates** among the starting structures (the same structure reached by two
+   routes, or its mirror image for an achiral molecule) are removed with a
+   symmetry-aware heavy-atom RMSD below 0.05 Å, so each is minimised once.
+"""
+
+from __future__ import annotations
+
+import itertools
+from dataclasses import dataclass
+from typing import Sequence
+
+import numpy as np
+from rdkit import Chem
+from rdkit.Chem import AllChem, rdMolTransforms
+from scipy.optimize import least_squares
+
+from chairbuild.errors import InputError
+from chairbuild.rings import RingAnalysis
+
+__all__ = [
+    "RingState",
+    "RING_STATES",
+    "StartingStructure",
+    "BuildReport",
+    "build_starting_structures",
+    "stereo_signature",
+]
+
+_CHAIR_TORSION = 55.0
+_TB_A = 31.0
+_TB_B = 65.0
+_INFEASIBLE_DEG = 40.0
+_HALF_TETRAHEDRAL = np.radians(54.75)
+DEFAULT_MAX_ROTAMERS = 81
+_TEMPLATE_SEED = 20261202
+
+
+@dataclass(frozen=True)
+class RingState:
+    """Target state of one ring: ``kind`` is 'chair' or 'twist-boat'; ``variant`` numbers the forms."""
+
+    kind: str
+    variant: int
+
+    @property
+    def label(self) -> str:
+        return f"{self.kind}-{self.variant}"
+
+    def torsions(self) -> np.ndarray:
+        """Ideal endocyclic torsions (degrees), torsion k over ring atoms k..k+3."""
+        k = np.arange(6)
+        if self.kind == "chair":
+            sign = 1.0 if self.variant == 0 else -1.0
+            return sign * _CHAIR_TORSION * (-1.0) ** k
+        shift, sign = divmod(self.variant, 2)
+        pattern = np.array([_TB_A, -_TB_B, _TB_A, _TB_A, -_TB_B, _TB_A])
+        return (1.0 if sign == 0 else -1.0) * np.roll(pattern, shift)
+
+
+#: The eight states of a six-membered ring.
+RING_STATES: tuple[RingState, ...] = tuple(
+    [RingState("chair", 0), RingState("chair", 1)] + [RingState("twist-boat", v) for v in range(6)]
+)
+
+
+@dataclass(frozen=True)
+class StartingStructure:
+    """One starting geometry (Å) and how it was made."""
+
+    coords: np.ndarray
+    origin: str
+
+
+@dataclass(frozen=True)
+class BuildReport:
+    """Starting structures plus the counts and notes of the build."""
+
+    starts: tuple[StartingStructure, ...]
+    notes: tuple[str, ...]
+    n_ring_combinations: int
+    n_infeasible: int
+    n_stereo_rejected: int
+    n_duplicates: int
+
+
+# ---------------------------------------------------------------- stereo check
+def stereo_signature(mol: Chem.Mol, coords: np.ndarray) -> str:
+    """Canonical isomeric SMILES with stereochemistry perceived from ``coords``."""
+    probe = Chem.Mol(mol)
+    probe.RemoveAllConformers()
+    conf = Chem.Conformer(probe.GetNumAtoms())
+    for i, xyz in enumerate(np.asarray(coords, dtype=float)):
+        conf.SetAtomPosition(i, xyz.tolist())
+    conf.Set3D(True)
+    probe.AddConformer(conf, assignId=True)
+    for atom in probe.GetAtoms():
+        atom.SetChiralTag(Chem.ChiralType.CHI_UNSPECIFIED)
+    for bond in probe.GetBonds():
+        if bond.GetBondType() == Chem.BondType.DOUBLE:
+            bond.SetStereo(Chem.BondStereo.STEREONONE)
+    Chem.AssignStereochemistryFrom3D(probe, replaceExistingTags=True)
+    return Chem.MolToSmiles(Chem.RemoveHs(probe), isomericSmiles=True)
+
+
+# ----------------------------------------------------------- ideal geometry
+def _bond_length(mol: Chem.Mol, i: int, j: int) -> float:
+    table = Chem.GetPeriodicTable()
+    a, b = mol.GetAtomWithIdx(i), mol.GetAtomWithIdx(j)
+    length = table.GetRcovalent(a.GetAtomicNum()) + table.GetRcovalent(b.GetAtomicNum())
+    bond = mol.GetBondBetweenAtoms(i, j)
+    if bond is not None and bond.GetBondType() == Chem.BondType.DOUBLE:
+        length -= 0.2
+    elif bond is not None and bond.GetBondType() == Chem.BondType.AROMATIC:
+        length -= 0.1
+    elif bond is not None and bond.GetBondType() == Chem.BondType.TRIPLE:
+        length -= 0.34
+    if a.GetAtomicNum() == 1 or b.GetAtomicNum() == 1:
+        length = max(length - 0.05, 0.95)
+    return length
+
+
+def _ideal_angle(atom: Chem.Atom) -> float:
+    if atom.GetHybridization() in (Chem.HybridizationType.SP2,) or atom.GetIsAromatic():
+        return np.radians(120.0)
+    if atom.GetSymbol() == "S":
+        return np.radians(99.0)
+    return np.radians(111.0)
+
+
+def _dihedral_rad(p: np.ndarray) -> np.ndarray:
+    """Vectorised dihedral of quadruples p with shape (n, 4, 3)."""
+    b0 = p[:, 0] - p[:, 1]
+    b1 = p[:, 2] - p[:, 1]
+    b2 = p[:, 3] - p[:, 2]
+    b1n = b1 / np.linalg.norm(b1, axis=1)[:, None]
+    v = b0 - np.sum(b0 * b1n, axis=1)[:, None] * b1n
+    w = b2 - np.sum(b2 * b1n, axis=1)[:, None] * b1n
+    x = np.sum(v * w, axis=1)
+    y = np.sum(np.cross(b1n, v) * w, axis=1)
+    return np.arctan2(y, x)
+
+
+def _wrap(angle: np.ndarray) -> np.ndarray:
+    return (angle + np.pi) % (2.0 * np.pi) - np.pi
+
+
+def extended_system_atoms(mol: Chem.Mol, analysis: RingAnalysis, system_index: int) -> tuple[list[int], list[tuple[int, ...]]]:
+    """Atoms of a ring system plus every other ring fused or spiro-joined to it.
+
+    Returns the atoms and the extra rings (five-membered, aromatic, ...), which are placed
+    with the core but get no torsion targets, except 0° for aromatic rings.
+    """
+    atoms = set(analysis.systems[system_index].atoms)
+    own = {analysis.rings[r].atoms for r in analysis.systems[system_index].rings}
+    extra: list[tuple[int, ...]] = []
+    changed = True
+    all_rings = [tuple(r) for r in Chem.GetSymmSSSR(mol)]
+    while changed:
+        changed = False
+        for ring in all_rings:
+            if ring in extra or any(set(ring) == set(o) for o in own):
+                continue
+            if atoms & set(ring):
+                extra.append(ring)
+                atoms |= set(ring)
+                changed = True
+    return sorted(atoms), extra
+
+
+class _CoreProblem:
+    """Least-squares fit of a ring system's atoms to ideal bonds, angles and target torsions."""
+
+    def __init__(self, mol: Chem.Mol, analysis: RingAnalysis, system_index: int):
+        system = analysis.systems[system_index]
+        self.atoms, extra = extended_system_atoms(mol, analysis, system_index)
+        self.local = {a: i for i, a in enumerate(self.atoms)}
+        self.rings = [analysis.rings[r] for r in system.rings]
+        self.only_six = not extra
+        atom_set = set(self.atoms)
+        bonds, lengths = [], []
+        for b in mol.GetBonds():
+            i, j = b.GetBeginAtomIdx(), b.GetEndAtomIdx()
+            if i in atom_set and j in atom_set:
+                bonds.append((self.local[i], self.local[j]))
+                lengths.append(_bond_length(mol, i, j))
+        self.bonds = np.array(bonds, dtype=int)
+        self.lengths = np.array(lengths)
+        angles, values = [], []
+        for a in self.atoms:
+            nbs = [n.GetIdx() for n in mol.GetAtomWithIdx(a).GetNeighbors() if n.GetIdx() in atom_set]
+            for x, y in itertools.combinations(nbs, 2):
+                angles.append((self.local[x], self.local[a], self.local[y]))
+                values.append(_ideal_angle(mol.GetAtomWithIdx(a)))
+        self.angles = np.array(angles, dtype=int)
+        self.angle_values = np.array(values)
+        quads, fixed_zero = [], []
+        for ring in self.rings:
+            for k in range(6):
+                quad = [self.local[ring.atoms[(k + m) % 6]] for m in range(4)]
+                quads.append(quad)
+                bond = mol.GetBondBetweenAtoms(ring.atoms[(k + 1) % 6], ring.atoms[(k + 2) % 6])
+                fixed_zero.append(bond.GetBondType() in (Chem.BondType.DOUBLE, Chem.BondType.AROMATIC))
+        self.n_targeted = len(quads)
+        for ring in extra:
+            if all(mol.GetAtomWithIdx(a).GetIsAromatic() for a in ring):
+                size = len(ring)
+                for k in range(size):
+                    quads.append([self.local[ring[(k + m) % size]] for m in range(4)])
+                    fixed_zero.append(True)
+        self.quads = np.array(quads, dtype=int)
+        self.fixed_zero = np.array(fixed_zero, dtype=bool)
+
+    def residuals(self, x: np.ndarray, targets: np.ndarray) -> np.ndarray:
+        p = x.reshape(-1, 3)
+        d = np.linalg.norm(p[self.bonds[:, 0]] - p[self.bonds[:, 1]], axis=1)
+        r_bond = (d - self.lengths) / 0.01
+        u = p[self.angles[:, 0]] - p[self.angles[:, 1]]
+        v = p[self.angles[:, 2]] - p[self.angles[:, 1]]
+        cosang = np.sum(u * v, axis=1) / (np.linalg.norm(u, axis=1) * np.linalg.norm(v, axis=1))
+        ang = np.arccos(np.clip(cosang, -1.0, 1.0))
+        r_angle = (ang - self.angle_values) / np.radians(2.0)
+        tors = _dihedral_rad(p[self.quads])
+        weights = np.where(self.fixed_zero, 1.0 / np.radians(2.0), 1.0 / np.radians(10.0))
+        r_tors = _wrap(tors - targets) * weights
+        return np.concatenate([r_bond, r_angle, r_tors])
+
+    def torsion_targets(self, states: Sequence[RingState]) -> np.ndarray:
+        values = np.concatenate([s.torsions() for s in states] + [np.zeros(len(self.quads) - self.n_targeted)])
+        return np.radians(np.where(self.fixed_zero, 0.0, values))
+
+    def solve(self, states: Sequence[RingState], guesses: Sequence[np.ndarray]) -> np.ndarray | None:
+        """Ideal coordinates of the system's atoms for ``states``, or None if unreachable."""
+        targets = self.torsion_targets(states)
+        best, best_dev = None, np.inf
+        for guess in guesses:
+            fit = least_squares(self.residuals, guess.ravel(), args=(targets,), method="lm", max_nfev=4000)
+            p = fit.x.reshape(-1, 3)
+            tors = _dihedral_rad(p[self.quads])
+            dev = np.degrees(np.abs(_wrap(tors - targets)))[~self.fixed_zero]
+            worst = float(dev.max()) if dev.size else 0.0
+            if worst < best_dev:
+                best, best_dev = p, worst
+            if worst < 15.0:
+                break
+        if best is None or best_dev > _INFEASIBLE_DEG:
+            return None
+        return best
+
+
+def _single_ring_guess(state: RingState) -> np.ndarray:
+    """Ideal ring from the inverse Cremer–Pople construction (Q = 0.6 Å)."""
+    j = np.arange(6)
+    radius = 1.45
+    if state.kind == "chair":
+        z = (0.25 if state.variant == 0 else -0.25) * (-1.0) ** j
+    else:
+        shift, sign = divmod(state.variant, 2)
+        phi = np.radians(30.0 + 60.0 * shift)
+        z = (1.0 if sign == 0 else -1.0) * np.sqrt(1.0 / 3.0) * 0.6 * np.cos(phi + 4.0 * np.pi * j / 6.0)
+    ang = 2.0 * np.pi * j / 6.0
+    return np.stack([radius * np.cos(ang), radius * np.sin(ang), z], axis=1)
+
+
+# ------------------------------------------------------------ exocyclic placement
+def _exo_directions(core_xyz: dict[int, np.ndarray], atom: int, ring_nbs: list[int], sp2: bool) -> list[np.ndarray]:
+    """Free exocyclic bond directions at a ring-system atom (unit vectors)."""
+    units = [core_xyz[n] - core_xyz[atom] for n in ring_nbs]
+    units = [u / np.linalg.norm(u) for u in units]
+    if len(units) >= 3 or sp2:
+        d = -np.sum(units, axis=0)
+        norm = np.linalg.norm(d)
+        return [d / norm] if norm > 1e-6 and len(units) < 4 else []
+    bis = -(units[0] + units[1])
+    bis /= np.linalg.norm(bis)
+    normal = np.cross(units[0], units[1])
+    normal /= np.linalg.norm(normal)
+    return [
+        bis * np.cos(_HALF_TETRAHEDRAL) + normal * np.sin(_HALF_TETRAHEDRAL),
+        bis * np.cos(_HALF_TETRAHEDRAL) - normal * np.sin(_HALF_TETRAHEDRAL),
+    ]
+
+
+def _placements(mol: Chem.Mol, core_xyz: dict[int, np.ndarray], system_atoms: set[int], ranks: list[int]):
+    """Per ring-system atom, the list of distinct {exo atom: position} assignments."""
+    options = []
+    for atom in sorted(system_atoms):
+        a = mol.GetAtomWithIdx(atom)
+        ring_nbs = [n.GetIdx() for n in a.GetNeighbors() if n.GetIdx() in system_atoms]
+        exo = [n.GetIdx() for n in a.GetNeighbors() if n.GetIdx() not in system_atoms]
+        if not exo:
+            continue
+        sp2 = a.GetHybridization() in (Chem.HybridizationType.SP2, Chem.HybridizationType.SP)
+        dirs = _exo_directions(core_xyz, atom, ring_nbs, sp2)
+        if len(dirs) < len(exo):
+            raise InputError(f"atom {atom} ({a.GetSymbol()}) has more neighbours than a ring atom can place")
+        choices = []
+        seen = set()
+        for perm in itertools.permutations(range(len(dirs)), len(exo)):
+            key = tuple(sorted((ranks[e], p) for e, p in zip(exo, perm)))
+            if key in seen:
+                continue
+            seen.add(key)
+            choices.append(
+                {e: core_xyz[atom] + dirs[p] * _bond_length(mol, atom, e) for e, p in zip(exo, perm)}
+            )
+        options.append(choices)
+    return options
+
+
+# ----------------------------------------------------------------- assembly
+def _rotation_aligning(u: np.ndarray, v: np.ndarray) -> np.ndarray:
+    """Rotation matrix taking direction u onto direction v."""
+    u = u / np.linalg.norm(u)
+    v = v / np.linalg.norm(v)
+    c = float(np.dot(u, v))
+    axis = np.cross(u, v)
+    s = np.linalg.norm(axis)
+    if s < 1e-9:
+        if c > 0:
+            return np.eye(3)
+        perp = np.cross(u, [1.0, 0.0, 0.0])
+        if np.linalg.norm(perp) < 1e-6:
+            perp = np.cross(u, [0.0, 1.0, 0.0])
+        return _axis_rotation(perp / np.linalg.norm(perp), np.pi)
+    return _axis_rotation(axis / s, np.arctan2(s, c))
+
+
+def _axis_rotation(axis: np.ndarray, angle: float) -> np.ndarray:
+    k = np.array([[0, -axis[2], axis[1]], [axis[2], 0, -axis[0]], [-axis[1], axis[0], 0]])
+    return np.eye(3) + np.sin(angle) * k + (1 - np.cos(angle)) * (k @ k)
+
+
+def _dihedral(p0, p1, p2, p3) -> float:
+    return float(_dihedral_rad(np.array([[p0, p1, p2, p3]]))[0])
+
+
+class _Assembler:
+    """Assemble a full structure from ideal ring-system cores and rigid template branches.
+
+    The first ring system's core (its atoms and their direct neighbours) is placed as
+    built. Every bond from a placed atom x to a placed atom y whose other neighbours are
+    not yet placed starts a branch: the template coordinates of everything beyond y are
+    moved rigidly onto the bond x→y, keeping the template torsion about it. A branch
+    stops at the first atom of another ring system, whose own ideal core is then moved
+    onto the bond that reaches it in the same way.
+    """
+
+    def __init__(self, mol: Chem.Mol, system_atoms: dict[int, list[int]], template: np.ndarray):
+        self.mol = mol
+        self.template = template
+        self.n = mol.GetNumAtoms()
+        self.system_of = {a: s for s, atoms in system_atoms.items() for a in atoms}
+        self.neighbours = [[n.GetIdx() for n in mol.GetAtomWithIdx(i).GetNeighbors()] for i in range(self.n)]
+        self.heavy_first = [
+            sorted(nbs, key=lambda n: (-mol.GetAtomWithIdx(n).GetAtomicNum(), n)) for nbs in self.neighbours
+        ]
+
+    def _align(self, xyz, placed, frag: dict[int, np.ndarray], x: int, y: int, overwrite: bool) -> list[int]:
+        """Move ``frag`` (containing x and y) rigidly onto the placed bond x→y; return atoms written."""
+        src_vec = frag[y] - frag[x]
+        rot = _rotation_aligning(src_vec, xyz[y] - xyz[x])
+        moved = {a: (p - frag[y]) @ rot.T + xyz[y] for a, p in frag.items()}
+        r_x = next((n for n in self.heavy_first[x] if n != y and placed[n]), None)
+        r_y = next((n for n in self.heavy_first[y] if n != x and n in moved), None)
+        if r_x is not None and r_y is not None:
+            t = self.template
+            want = _dihedral(t[r_x], t[x], t[y], t[r_y])
+            have = _dihedral(xyz[r_x], xyz[x], xyz[y], moved[r_y])
+            axis = xyz[y] - xyz[x]
+            spin = _axis_rotation(axis / np.linalg.norm(axis), want - have)
+            moved = {a: (p - xyz[y]) @ spin.T + xyz[y] for a, p in moved.items()}
+        written = []
+        for a, p in moved.items():
+            if a in (x, y):
+                continue
+            if overwrite or not placed[a]:
+                xyz[a] = p
+                placed[a] = True
+                written.append(a)
+        return written
+
+    def _branch(self, start: int, parent: int, placed) -> tuple[dict[int, np.ndarray], list[int]]:
+        """Template coordinates beyond parent→start; stops at (and reports) other ring-system atoms."""
+        frag = {parent: self.template[parent], start: self.template[start]}
+        boundary = []
+        stack = [start]
+        while stack:
+            cur = stack.pop()
+            for n in self.neighbours[cur]:
+                if n in frag or placed[n]:
+                    continue
+                frag[n] = self.template[n]
+                if n in self.system_of:
+                    boundary.append(n)
+                else:
+                    stack.append(n)
+        return frag, boundary
+
+    def _attachments(self, atoms, placed) -> list[tuple[int, int]]:
+        out = []
+        for y in atoms:
+            for x in self.neighbours[y]:
+                if placed[x] and placed[y] and any(not placed[n] for n in self.neighbours[y]):
+                    out.append((x, y))
+                    break
+        return out
+
+    def assemble(self, cores: dict[int, dict[int, np.ndarray]]) -> np.ndarray:
+        """``cores`` maps ring-system index -> {atom: ideal position} (system atoms and their neighbours)."""
+        xyz = np.zeros((self.n, 3))
+        placed = np.zeros(self.n, dtype=bool)
+        first = min(cores)
+        for a, p in cores[first].items():
+            xyz[a] = p
+            placed[a] = True
+        done = {first}
+        queue = self._attachments(list(cores[first]), placed)
+        while queue:
+            x, y = queue.pop(0)
+            sys_y = self.system_of.get(y)
+            if sys_y is not None and sys_y not in done:
+                written = self._align(xyz, placed, cores[sys_y], x, y, overwrite=True)
+                done.add(sys_y)
+                queue.extend(self._attachments(written + [y], placed))
+                continue
+            frag, boundary = self._branch(y, x, placed)
+            written = self._align(xyz, placed, frag, x, y, overwrite=False)
+            for d in boundary:
+                sys_d = self.system_of[d]
+                if sys_d in done:
+                    continue
+                c = next(n for n in self.neighbours[d] if n in frag and n != d and placed[n] and n not in self.system_of)
+                core = dict(cores[sys_d])
+                written += self._align(xyz, placed, core, c, d, overwrite=True)
+                done.add(sys_d)
+            queue.extend(self._attachments(written, placed))
+        if not placed.all():
+            missing = np.flatnonzero(~placed).tolist()
+            raise InputError(f"could not place atoms {missing[:10]} while building")
+        return xyz
+
+
+# ------------------------------------------------------------------ builder
+def _template(mol: Chem.Mol) -> np.ndarray:
+    params = AllChem.ETKDGv3()
+    params.randomSeed = _TEMPLATE_SEED
+    cid = AllChem.EmbedMolecule(mol, params)
+    if cid < 0:
+        params.useRandomCoords = True
+        cid = AllChem.EmbedMolecule(mol, params)
+    if cid < 0:
+        raise InputError("RDKit could not embed a 3D template of the molecule")
+    xyz = mol.GetConformer(cid).GetPositions()
+    mol.RemoveAllConformers()
+    return xyz
+
+
+def _ring_combinations(n_rings: int) -> list[tuple[RingState, ...]]:
+    chairs = RING_STATES[:2]
+    boats = RING_STATES[2:]
+    combos = list(itertools.product(chairs, repeat=n_rings))
+    if n_rings == 1:
+        return combos + [(b,) for b in boats]
+    for pos in range(n_rings):
+        for base in itertools.product(chairs, repeat=n_rings - 1):
+            for b in boats:
+                combos.append(tuple(base[:pos]) + (b,) + tuple(base[pos:]))
+    return combos
+
+
+def _kabsch(src: np.ndarray, dst: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Rotation R and centroids so that (src - cs) @ R.T + cd best fits dst (proper rotation)."""
+    cs, cd = src.mean(axis=0), dst.mean(axis=0)
+    h = (src - cs).T @ (dst - cd)
+    u, _, vt = np.linalg.svd(h)
+    d = np.sign(np.linalg.det(vt.T @ u.T))
+    rot = vt.T @ np.diag([1.0, 1.0, d]) @ u.T
+    return rot, cs, cd
+
+
+def _core_guesses(problem: _CoreProblem, states: Sequence[RingState], template: np.ndarray) -> list[np.ndarray]:
+    """Starting guesses: each ring in turn at its ideal shape with the rest from the template."""
+    base = template[problem.atoms] - template[problem.atoms].mean(axis=0)
+    guesses = []
+    for ring, state in zip(problem.rings, states):
+        idx = [problem.local[a] for a in ring.atoms]
+        ideal = _single_ring_guess(state)
+        rot, cs, cd = _kabsch(base[idx], ideal)
+        g = (base - cs) @ rot.T + cd
+        g[idx] = ideal
+        guesses.append(g)
+    guesses.append(base)
+    rng = np.random.default_rng(7)
+    for _ in range(3):
+        guesses.append(guesses[0] + rng.normal(scale=0.3, size=base.shape))
+    return guesses
+
+
+def _system_cores(mol, analysis, template, problems, combo_per_system, ranks):
+    """For each ring system, the list of full core dicts (ring atoms + exocyclic atoms)."""
+    per_system = {}
+    for s_idx, states in combo_per_system.items():
+        coords = problems[s_idx].solve(states, _core_guesses(problems[s_idx], states, template))
+        if coords is None:
+            return None
+        core_xyz = {a: coords[problems[s_idx].local[a]] for a in problems[s_idx].atoms}
+        options = _placements(mol, core_xyz, set(problems[s_idx].atoms), ranks)
+        cores = []
+        for choice in itertools.product(*options):
+            full = dict(core_xyz)
+            for part in choice:
+                full.update(part)
+            cores.append(full)
+        per_system[s_idx] = cores
+    return per_system
+
+
+def _set_rotamer(conf: Chem.Conformer, rotor_atoms, angle: float) -> None:
+    rdMolTransforms.SetDihedralDeg(conf, *rotor_atoms, float(angle))
+
+
+def build_starting_structures(
+    mol: Chem.Mol,
+    analysis: RingAnalysis,
+    reference_signature: str,
+    achiral: bool,
+    max_rotamers: int = DEFAULT_MAX_ROTAMERS,
+    include_twist_boats: bool = True,
+) -> BuildReport:
+    """Enumerate and build every starting structure of ``mol``.
+
+    Parameters
+    ----------
+    mol : rdkit.Chem.Mol
+        With explicit hydrogens and stereochemistry.
+    analysis : RingAnalysis
+    reference_signature : str
+        Canonical isomeric SMILES the built structures must reproduce.
+    achiral : bool
+        Whether mirror-image structures count as duplicates.
+    max_rotamers : int
+        Cap on rotamer combinations per ring-state combination.
+    include_twist_boats : bool
+        Build twist-boat states too (default True).
+
+    Returns
+    -------
+    BuildReport
+    """
+    from chairbuild.dedupe import StructureDeduplicator
+
+    work = Chem.Mol(mol)
+    template = _template(work)
+    ranks = list(Chem.CanonicalRankAtoms(mol, breakTies=False))
+    problems = {s.index: _CoreProblem(mol, analysis, s.index) for s in analysis.systems}
+    combos_per_system = {}
+    for s in analysis.systems:
+        combos = _ring_combinations(len(s.rings))
+        if not include_twist_boats:
+            combos = [c for c in combos if all(st.kind == "chair" for st in c)]
+        combos_per_system[s.index] = combos
+    notes: list[str] = []
+    rotors = list(analysis.rotors)
+    n_combos_rot = int(np.prod([len(r.angles) for r in rotors])) if rotors else 1
+    if n_combos_rot > max_rotamers:
+        kept, total = [], 1
+        for r in rotors:
+            if total * len(r.angles) <= max_rotamers:
+                kept.append(r)
+                total *= len(r.angles)
+        notes.append(
+            f"rotamer cap reached: {n_combos_rot} combinations of {len(rotors)} rotatable bonds exceed "
+            f"max_rotamers={max_rotamers}; the {len(rotors) - len(kept)} rotor(s) farthest from the rings keep their template torsion"
+        )
+        rotors = kept
+    rotamer_sets = list(itertools.product(*(r.angles for r in rotors))) if rotors else [()]
+    # non-chair states: one rotor varied at a time from the first value (their rotamers matter less)
+    boat_sets = [tuple(r.angles[0] for r in rotors)]
+    for pos, r in enumerate(rotors):
+        for value in r.angles[1:]:
+            boat_sets.append(tuple(r2.angles[0] if q != pos else value for q, r2 in enumerate(rotors)))
+    assembler = _Assembler(mol, {k: p.atoms for k, p in problems.items()}, template)
+    dedupe = StructureDeduplicator(mol, None, achiral=achiral, rmsd_threshold=0.05)
+    starts: list[StartingStructure] = []
+    n_infeasible = n_stereo = n_dup = n_total = 0
+    infeasible_labels = []
+    system_ids = [s.index for s in analysis.systems]
+    conf_mol = Chem.Mol(mol)
+    conf_mol.RemoveAllConformers()
+    conf = Chem.Conformer(mol.GetNumAtoms())
+    conf_mol.AddConformer(conf, assignId=True)
+    for combo in itertools.product(*(combos_per_system[s] for s in system_ids)):
+        n_total += 1
+        combo_map = dict(zip(system_ids, combo))
+        label = ";".join(
+            f"ring{analysis.systems[s].rings[k]}={st.label}" for s, states in combo_map.items() for k, st in enumerate(states)
+        )
+        cores = _system_cores(mol, analysis, template, problems, combo_map, ranks)
+        if cores is None:
+            n_infeasible += 1
+            infeasible_labels.append(label)
+            continue
+        for choice_idx, core_choice in enumerate(itertools.product(*(cores[s] for s in system_ids))):
+            xyz = assembler.assemble(dict(zip(system_ids, core_choice)))
+            if stereo_signature(mol, xyz) != reference_signature:
+                n_stereo += 1
+                continue
+            all_chairs = all(st.kind == "chair" for states in combo_map.values() for st in states)
+            for rot_values in rotamer_sets if all_chairs else boat_sets:
+                c = conf_mol.GetConformer()
+                for i, p in enumerate(xyz):
+                    c.SetAtomPosition(i, p.tolist())
+                for rotor, value in zip(rotors, rot_values):
+                    _set_rotamer(c, rotor.atoms, value)
+                final = c.GetPositions()
+                if dedupe.is_duplicate(final):
+                    n_dup += 1
+                    continue
+                rot_label = ",".join(f"{v:.0f}" for v in rot_values)
+                origin = f"{label}|placement{choice_idx}" + (f"|rot({rot_label})" if rot_values else "")
+                dedupe.add(final)
+                starts.append(StartingStructure(coords=final, origin=origin))
+    if infeasible_labels:
+        notes.append(
+            f"{len(infeasible_labels)} ring-state combination(s) cannot be reached with this ring fusion and were dropped"
+        )
+    return BuildReport(
+        starts=tuple(starts),
+        notes=tuple(notes),
+        n_ring_combinations=n_total,
+        n_infeasible=n_infeasible,
+        n_stereo_rejected=n_stereo,
+        n_duplicates=n_dup,
+    )

@@ -1,0 +1,155 @@
+"""Command line: ``chairbuild analyze INPUT [options]`` and ``chairbuild demo``.
+
+Bad input or options print one message naming the problem and exit with code 2; no
+traceback. Output files are checked before any work starts and written atomically.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from typing import Sequence
+
+from chairbuild.errors import ChairbuildError
+
+__all__ = ["main", "build_parser"]
+
+EXIT_USAGE = 2
+
+
+class _Parser(argparse.ArgumentParser):
+    def error(self, message: str) -> None:  # argparse's own errors: exit 2, one line
+        self.print_usage(sys.stderr)
+        self.exit(EXIT_USAGE, f"chairbuild: error: {message}\n")
+
+
+def _positive_float(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"not a number: {text!r}") from None
+    if not value > 0:
+        raise argparse.ArgumentTypeError(f"must be positive: {text!r}")
+    return value
+
+
+def _positive_int(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"not an integer: {text!r}") from None
+    if value < 1:
+        raise argparse.ArgumentTypeError(f"must be at least 1: {text!r}")
+    return value
+
+
+def _add_analysis_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument("-T", "--temperature", type=_positive_float, default=298.15, help="temperature in K (default 298.15)")
+    p.add_argument(
+        "--window",
+        type=_positive_float,
+        default=None,
+        help="keep conformers within this energy of the lowest, in --units (default 30 kJ/mol)",
+    )
+    p.add_argument("--units", choices=["kj", "kcal"], default="kj", help="energy unit of all output (default kj)")
+    p.add_argument("--forcefield", choices=["mmff94", "mmff94s"], default="mmff94", help="MMFF variant (default mmff94)")
+    p.add_argument("--no-twist-boats", action="store_true", help="build chairs only")
+    p.add_argument(
+        "--max-rotamers", type=_positive_int, default=81, help="cap on rotamer combinations per ring state (default 81)"
+    )
+    p.add_argument("--threads", type=_positive_int, default=None, help="CPU threads for the energy engines")
+    p.add_argument("--quiet", action="store_true", help="no progress bars")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The argument parser (exposed for the documentation and tests)."""
+    parser = _Parser(
+        prog="chairbuild",
+        description="Build every chair and twist-boat of a molecule's six-membered rings, minimise them, "
+        "and report populations, axial/equatorial positions and the additive estimate.",
+    )
+    sub = parser.add_subparsers(dest="command", required=True, parser_class=_Parser)
+    an = sub.add_parser("analyze", help="analyse one molecule (SMILES or SDF/MOL file)")
+    an.add_argument("molecule", help="SMILES string, or path of an SDF/MOL file")
+    an.add_argument("--record", type=_positive_int, default=None, help="1-based record of a multi-record SDF")
+    an.add_argument("--name", default=None, help="name used in the output")
+    an.add_argument("--enumerate-stereo", action="store_true", help="analyse every diastereomer when stereo is undefined")
+    an.add_argument("--json", action="store_true", help="print the JSON result to stdout instead of the table")
+    an.add_argument(
+        "-o",
+        "--output",
+        action="append",
+        default=[],
+        metavar="PATH",
+        help="write results; format by extension (.sdf .xyz .csv .json) or a directory (one XYZ per conformer); repeatable",
+    )
+    _add_analysis_options(an)
+    demo = sub.add_parser("demo", help="run the built-in demonstration scenario")
+    demo.add_argument("--output-dir", default="demo-output", help="where the demo writes its files (default demo-output)")
+    demo.add_argument("--quiet", action="store_true", help="no progress bars")
+    return parser
+
+
+def _analysis_kwargs(args: argparse.Namespace) -> dict:
+    from chairbuild.result import EnergyUnit
+
+    unit = EnergyUnit.parse(args.units)
+    kwargs = {
+        "temperature": args.temperature,
+        "forcefield": args.forcefield,
+        "twist_boats": not args.no_twist_boats,
+        "max_rotamers": args.max_rotamers,
+        "threads": args.threads,
+        "progress": not args.quiet and sys.stderr.isatty(),
+    }
+    if args.window is not None:
+        kwargs["window"] = unit.to_kj(args.window)
+    return kwargs
+
+
+def _run_analyze(args: argparse.Namespace) -> int:
+    import json
+
+    from chairbuild.output import check_target, format_table, write_many
+    from chairbuild.pipeline import analyze_all
+    from chairbuild.result import EnergyUnit
+
+    unit = EnergyUnit.parse(args.units)
+    for target in args.output:
+        check_target(target)
+    ensembles = analyze_all(
+        args.molecule,
+        name=args.name,
+        record=args.record,
+        enumerate_stereo=args.enumerate_stereo,
+        **_analysis_kwargs(args),
+    )
+    for target in args.output:
+        for path in write_many(ensembles, target, unit):
+            print(f"wrote {path}", file=sys.stderr)
+    if args.json:
+        payload = ensembles[0].to_dict(unit) if len(ensembles) == 1 else [e.to_dict(unit) for e in ensembles]
+        print(json.dumps(payload, indent=2))
+    else:
+        print("\n\n".join(format_table(e, unit) for e in ensembles))
+    return 0
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Entry point of the ``chairbuild`` command; returns the exit code."""
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    try:
+        if args.command == "analyze":
+            return _run_analyze(args)
+        if args.command == "demo":
+            from chairbuild.demo import run_demo
+
+            return run_demo(args.output_dir, progress=not args.quiet and sys.stderr.isatty())
+    except ChairbuildError as exc:
+        print(f"chairbuild: error: {exc}", file=sys.stderr)
+        return EXIT_USAGE
+    except KeyboardInterrupt:
+        print("chairbuild: interrupted", file=sys.stderr)
+        return 130
+    return EXIT_USAGE

@@ -1,0 +1,219 @@
+"""Read the molecule: SMILES or SDF/MOL file, hydrogens, and stereochemistry decisions.
+
+Atom order of everything downstream: the input's heavy atoms in input order, then the
+hydrogens (RDKit's ``AddHs`` appends them), whatever the input's own hydrogen order.
+
+Stereochemistry rules:
+
+* fully specified input is analysed as given;
+* undefined stereo that only decides between mirror images (all possible assignments
+  fall into one enantiomer pair) is analysed as one enantiomer, with a note, since
+  mirror images have the same conformer energies;
+* undefined stereo that decides between diastereomers raises :class:`StereoError`
+  naming the atoms, unless ``enumerate_stereo`` asks for every diastereomer (one
+  enantiomer of each).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+
+from rdkit import Chem, RDLogger
+from rdkit.Chem.EnumerateStereoisomers import EnumerateStereoisomers, StereoEnumerationOptions
+
+from chairbuild.errors import InputError, StereoError
+
+__all__ = ["PreparedMolecule", "read_molecules", "mirror_smiles", "canonical_smiles"]
+
+_FILE_SUFFIXES = {".sdf", ".sd", ".mol", ".mdl"}
+#: At most this many diastereomers are enumerated with ``enumerate_stereo``.
+MAX_STEREOISOMERS = 32
+
+
+@dataclass(frozen=True)
+class PreparedMolecule:
+    """One molecule ready for the pipeline.
+
+    Attributes
+    ----------
+    mol : rdkit.Chem.Mol
+        With explicit hydrogens (heavy atoms first, in input order) and stereo assigned.
+    name : str
+    smiles : str
+        Canonical isomeric SMILES (no explicit hydrogens).
+    notes : tuple of str
+    achiral : bool
+        True when the molecule is superposable on its mirror image.
+    """
+
+    mol: Chem.Mol
+    name: str
+    smiles: str
+    notes: tuple[str, ...]
+    achiral: bool
+
+
+def canonical_smiles(mol: Chem.Mol) -> str:
+    """Canonical isomeric SMILES without explicit hydrogens."""
+    return Chem.MolToSmiles(Chem.RemoveHs(mol), isomericSmiles=True)
+
+
+def _mirror(mol: Chem.Mol) -> Chem.Mol:
+    mirrored = Chem.Mol(mol)
+    for atom in mirrored.GetAtoms():
+        tag = atom.GetChiralTag()
+        if tag == Chem.ChiralType.CHI_TETRAHEDRAL_CW:
+            atom.SetChiralTag(Chem.ChiralType.CHI_TETRAHEDRAL_CCW)
+        elif tag == Chem.ChiralType.CHI_TETRAHEDRAL_CCW:
+            atom.SetChiralTag(Chem.ChiralType.CHI_TETRAHEDRAL_CW)
+    Chem.AssignStereochemistry(mirrored, cleanIt=True, force=True)
+    return mirrored
+
+
+def mirror_smiles(mol: Chem.Mol) -> str:
+    """Canonical SMILES of the mirror image of ``mol``."""
+    return canonical_smiles(_mirror(mol))
+
+
+def _read_file(path: Path, record: int | None) -> tuple[Chem.Mol, str]:
+    if not path.is_file():
+        raise InputError(f"cannot read {str(path)!r}: no such file")
+    index = 1 if record is None else record
+    if index < 1:
+        raise InputError(f"--record counts from 1, got {index}")
+    try:
+        supplier = Chem.SDMolSupplier(str(path), removeHs=False, sanitize=True)
+    except OSError as exc:
+        raise InputError(f"cannot read {str(path)!r}: {exc}") from None
+    count = 0
+    for count, mol in enumerate(supplier, start=1):
+        if count == index:
+            if mol is None:
+                raise InputError(f"record {index} of {str(path)!r} is not a valid molecule")
+            name = mol.GetProp("_Name") if mol.HasProp("_Name") and mol.GetProp("_Name").strip() else f"{path.stem}#{index}"
+            if mol.GetNumConformers() and mol.GetConformer().Is3D():
+                Chem.AssignStereochemistryFrom3D(mol)
+            return mol, name
+    if count == 0:
+        raise InputError(f"{str(path)!r} holds no molecule record")
+    raise InputError(f"{str(path)!r} has {count} record(s); record {index} does not exist")
+
+
+def _parse(source: str, record: int | None) -> tuple[Chem.Mol, str]:
+    text = source.strip()
+    if not text:
+        raise InputError("empty input: give a SMILES string or an SDF/MOL file")
+    path = Path(text)
+    if path.suffix.lower() in _FILE_SUFFIXES or path.is_file():
+        return _read_file(path, record)
+    if record is not None:
+        raise InputError("--record applies to SDF/MOL files only")
+    RDLogger.DisableLog("rdApp.*")
+    try:
+        mol = Chem.MolFromSmiles(text)
+    finally:
+        RDLogger.EnableLog("rdApp.*")
+    if mol is None:
+        raise InputError(f"invalid SMILES {text!r}")
+    return mol, text
+
+
+def _unassigned_stereo_atoms(mol: Chem.Mol) -> list[str]:
+    labels = []
+    for info in Chem.FindPotentialStereo(mol):
+        if info.specified == Chem.StereoSpecified.Unspecified:
+            if info.type == Chem.StereoType.Atom_Tetrahedral:
+                a = mol.GetAtomWithIdx(info.centeredOn)
+                labels.append(f"atom {info.centeredOn} ({a.GetSymbol()})")
+            elif info.type == Chem.StereoType.Bond_Double:
+                b = mol.GetBondWithIdx(info.centeredOn)
+                labels.append(f"double bond {b.GetBeginAtomIdx()}={b.GetEndAtomIdx()}")
+    return labels
+
+
+def _with_hydrogens(mol: Chem.Mol) -> Chem.Mol:
+    heavy = Chem.RemoveHs(mol, sanitize=True)
+    if heavy.GetNumAtoms() == 0:
+        raise InputError("the molecule has no heavy atoms")
+    Chem.AssignStereochemistry(heavy, cleanIt=True, force=True)
+    return Chem.AddHs(heavy)
+
+
+def read_molecules(
+    source: str,
+    record: int | None = None,
+    enumerate_stereo: bool = False,
+    name: str | None = None,
+) -> list[PreparedMolecule]:
+    """Read a SMILES string or a file and apply the stereochemistry rules.
+
+    Parameters
+    ----------
+    source : str
+        SMILES, or the path of an SDF/MOL file.
+    record : int, optional
+        1-based record number in a multi-record SDF (default: the first).
+    enumerate_stereo : bool
+        Analyse every diastereomer when stereo is undefined.
+    name : str, optional
+        Name for the result (default: the SDF title or the SMILES).
+
+    Returns
+    -------
+    list of PreparedMolecule
+        One entry, or one per diastereomer with ``enumerate_stereo``.
+
+    Raises
+    ------
+    InputError, StereoError
+    """
+    mol, default_name = _parse(source, record)
+    name = name or default_name
+    heavy = Chem.RemoveHs(mol)
+    Chem.AssignStereochemistry(heavy, cleanIt=True, force=True)
+    unassigned = _unassigned_stereo_atoms(heavy)
+    notes: list[str] = []
+    if not unassigned:
+        candidates = [heavy]
+    else:
+        opts = StereoEnumerationOptions(onlyUnassigned=True, unique=True, maxIsomers=4 * MAX_STEREOISOMERS)
+        isomers = [Chem.Mol(m) for m in EnumerateStereoisomers(heavy, options=opts)]
+        classes: dict[str, Chem.Mol] = {}
+        for iso in isomers:
+            smi = canonical_smiles(iso)
+            mirror = mirror_smiles(iso)
+            if smi in classes or mirror in classes:
+                continue
+            classes[smi] = iso
+        if len(classes) == 1:
+            candidates = list(classes.values())
+            notes.append(
+                f"stereochemistry undefined at {', '.join(unassigned)} only decides between mirror images; "
+                f"analysed as {next(iter(classes))} (mirror images have the same conformer energies)"
+            )
+        elif not enumerate_stereo:
+            raise StereoError(
+                f"undefined stereochemistry at {', '.join(unassigned)} decides between "
+                f"{len(classes)} diastereomers; specify it or use --enumerate-stereo"
+            )
+        else:
+            if len(classes) > MAX_STEREOISOMERS:
+                raise StereoError(f"{len(classes)} diastereomers exceed the limit of {MAX_STEREOISOMERS}")
+            candidates = list(classes.values())
+            notes.append(f"stereochemistry undefined at {', '.join(unassigned)}: {len(classes)} diastereomers analysed separately")
+    out = []
+    for k, cand in enumerate(candidates):
+        with_h = _with_hydrogens(cand)
+        smi = canonical_smiles(with_h)
+        label = name if len(candidates) == 1 or not enumerate_stereo else f"{name} [{smi}]"
+        out.append(
+            PreparedMolecule(
+                mol=with_h,
+                name=label,
+                smiles=smi,
+                notes=tuple(notes),
+                achiral=(smi == mirror_smiles(with_h)),
+            )
+        )
+    return out

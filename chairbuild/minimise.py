@@ -1,0 +1,141 @@
+"""Minimise starting structures with MMFF94/MMFF94s in OpenMM, check stereochemistry, remove duplicates.
+
+Every minimised structure is checked: its stereochemistry perceived from 3D (CIP labels
+and ring cis/trans relations, compared through the canonical isomeric SMILES) must equal
+the input's, else it is kept as a rejected record with status ``stereo-changed``. A
+structure whose minimisation did not meet the gradient criterion is kept as a rejected
+record with status ``not-converged``.
+
+Duplicates: structures are sorted by energy and a structure is dropped when a kept one
+lies within ``energy_tolerance`` (default 0.5 kJ/mol) and within ``rmsd_threshold``
+(default 0.25 Å, heavy atoms and lone polar hydrogens, symmetry-aware; mirror images
+count for achiral molecules) of it.
+"""
+
+from __future__ import annotations
+
+import enum
+from dataclasses import dataclass
+from typing import Sequence
+
+import numpy as np
+from rdkit import Chem
+
+from chairbuild.build import StartingStructure, stereo_signature
+from chairbuild.dedupe import StructureDeduplicator
+from chairbuild.result import Status
+
+__all__ = ["ForceFieldVariant", "MinimisedStructure", "minimise_starts", "deduplicate"]
+
+#: Structures per OpenMM batch; also the granularity of the progress bar.
+BATCH_SIZE = 64
+DEFAULT_RMSD_THRESHOLD = 0.25
+DEFAULT_ENERGY_TOLERANCE = 0.5
+
+
+class ForceFieldVariant(str, enum.Enum):
+    """MMFF variant used for minimisation."""
+
+    MMFF94 = "MMFF94"
+    MMFF94S = "MMFF94s"
+
+    @classmethod
+    def parse(cls, text: str) -> "ForceFieldVariant":
+        from chairbuild.errors import OptionError
+
+        for member in cls:
+            if member.value.lower() == text.strip().lower():
+                return member
+        raise OptionError(f"unknown force field {text!r}; choose from: mmff94, mmff94s")
+
+
+@dataclass(frozen=True)
+class MinimisedStructure:
+    """A structure after minimisation (Å, kJ/mol)."""
+
+    coords: np.ndarray
+    energy: float
+    rms_gradient: float
+    converged: bool
+    origin: str
+    status: Status
+    message: str = ""
+    degeneracy: int = 1
+
+
+def minimise_starts(
+    mol: Chem.Mol,
+    starts: Sequence[StartingStructure],
+    reference_signature: str,
+    variant: ForceFieldVariant = ForceFieldVariant.MMFF94,
+    threads: int | None = None,
+    progress: bool = False,
+) -> tuple[list[MinimisedStructure], int]:
+    """Minimise every start with MMFF in OpenMM; return the structures and the minimisation count."""
+    from tqdm.auto import tqdm
+
+    from forcefields.mmff import MMFFModel
+
+    model = MMFFModel(mol, variant=variant.value, threads=threads)
+    out: list[MinimisedStructure] = []
+    with tqdm(total=len(starts), desc=f"{variant.value} minimisation", unit="conf", disable=not progress, leave=False) as bar:
+        for begin in range(0, len(starts), BATCH_SIZE):
+            chunk = starts[begin : begin + BATCH_SIZE]
+            results = model.minimize(np.array([s.coords for s in chunk]))
+            for start, res in zip(chunk, results):
+                status, message = Status.OK, ""
+                if not res.converged:
+                    status = Status.NOT_CONVERGED
+                    message = f"RMS gradient {res.rms_gradient:.3g} kJ/mol/Å above the convergence criterion"
+                elif stereo_signature(mol, res.coords) != reference_signature:
+                    status = Status.STEREO_CHANGED
+                    message = f"stereochemistry changed during minimisation: {stereo_signature(mol, res.coords)}"
+                out.append(
+                    MinimisedStructure(
+                        coords=np.asarray(res.coords, dtype=float),
+                        energy=float(res.energy),
+                        rms_gradient=float(res.rms_gradient),
+                        converged=bool(res.converged),
+                        origin=start.origin,
+                        status=status,
+                        message=message,
+                    )
+                )
+            bar.update(len(chunk))
+    return out, len(starts)
+
+
+def deduplicate(
+    mol: Chem.Mol,
+    structures: Sequence[MinimisedStructure],
+    achiral: bool,
+    rmsd_threshold: float = DEFAULT_RMSD_THRESHOLD,
+    energy_tolerance: float = DEFAULT_ENERGY_TOLERANCE,
+) -> list[MinimisedStructure]:
+    """Distinct OK structures, lowest energy first, each with its degeneracy.
+
+    The degeneracy is 2 for a conformer of an achiral molecule that is not superposable
+    on its mirror image (its mirror image is a distinct conformer of the same energy),
+    else 1.
+    """
+    ok = sorted((s for s in structures if s.status is Status.OK), key=lambda s: s.energy)
+    dedupe = StructureDeduplicator(mol, None, achiral=achiral, rmsd_threshold=rmsd_threshold, energy_tolerance=energy_tolerance)
+    kept = []
+    for s in ok:
+        if dedupe.is_duplicate(s.coords, s.energy):
+            continue
+        dedupe.add(s.coords, s.energy)
+        degeneracy = 2 if achiral and dedupe.is_chiral_conformer(s.coords) else 1
+        kept.append(
+            MinimisedStructure(
+                coords=s.coords,
+                energy=s.energy,
+                rms_gradient=s.rms_gradient,
+                converged=s.converged,
+                origin=s.origin,
+                status=s.status,
+                message=s.message,
+                degeneracy=degeneracy,
+            )
+        )
+    return kept

@@ -1,0 +1,251 @@
+"""Exporters and the terminal table. They only read the :class:`~chairbuild.result.Ensemble`.
+
+The format follows the path: ``.sdf`` (multi-conformer, every per-conformer property as a
+data field), ``.xyz`` (multi-frame), ``.csv``, ``.json``; a directory (an existing one, a
+path ending in ``/``, or a path without suffix) gets one XYZ file per conformer named by
+energy rank (``rank_001.xyz`` is the lowest) with energy and population on the comment
+line. Files are written to a temporary name first and moved into place, so a failure
+never leaves a half-written file behind.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import os
+import tempfile
+from pathlib import Path
+from typing import Callable, Sequence
+
+from chairbuild.errors import OptionError
+from chairbuild.result import EnergyUnit, Ensemble
+
+__all__ = ["write", "format_table", "sdf_text", "xyz_text", "csv_text", "SUPPORTED_SUFFIXES"]
+
+
+def _energy_fields(ens: Ensemble, unit: EnergyUnit, rec) -> dict[str, str]:
+    u = unit.value
+    fields = {
+        "chairbuild_id": str(rec.id),
+        "chairbuild_status": rec.status.value,
+        f"relative_energy ({u})": f"{unit.from_kj(rec.relative_energy):.4f}",
+        "population": f"{rec.population:.6f}",
+        "degeneracy": str(rec.degeneracy),
+        "ranking_method": ens.method,
+        "temperature_K": f"{ens.temperature:.2f}",
+    }
+    for level, value in rec.energies.items():
+        fields[f"energy {level} ({u})"] = f"{unit.from_kj(value):.4f}"
+    for key, value in rec.thermo.items():
+        fields[f"{key} ({u})"] = f"{unit.from_kj(value):.4f}"
+    for k, ring in enumerate(rec.rings):
+        fields[f"ring{k}_shape"] = ring.shape.value
+        fields[f"ring{k}_cremer_pople"] = f"Q={ring.q_total:.4f} theta={ring.theta:.2f} phi={ring.phi:.2f}"
+        fields[f"ring{k}_torsions"] = " ".join(f"{t:.1f}" for t in ring.torsions)
+    fields["substituents"] = "; ".join(
+        f"{ens.symbols[s.atom]}{s.atom}({s.group}) on {ens.symbols[s.ring_atom]}{s.ring_atom}: {s.position.value}"
+        for s in rec.substituents
+    )
+    fields["families"] = " ".join(rec.families)
+    fields["converged"] = "yes" if rec.converged else "no"
+    fields["rms_gradient (kJ/mol/A)"] = f"{rec.rms_gradient:.4g}"
+    fields["origin"] = rec.origin
+    if rec.message:
+        fields["message"] = rec.message
+    return fields
+
+
+def sdf_text(ens: Ensemble, unit: EnergyUnit = EnergyUnit.KJ, include_rejected: bool = False) -> str:
+    """Multi-conformer SD file text."""
+    from rdkit import Chem
+
+    mol = ens.to_rdkit(include_rejected=include_rejected)
+    records = ens.conformers + (ens.rejected if include_rejected else ())
+    buf = io.StringIO()
+    writer = Chem.SDWriter(buf)
+    for rec, conf in zip(records, mol.GetConformers()):
+        m = Chem.Mol(mol)
+        m.RemoveAllConformers()
+        m.AddConformer(Chem.Conformer(conf), assignId=True)
+        m.SetProp("_Name", f"{ens.name} conformer {rec.id}")
+        for key, value in _energy_fields(ens, unit, rec).items():
+            m.SetProp(key, value)
+        writer.write(m)
+    writer.close()
+    return buf.getvalue()
+
+
+def _xyz_block(ens: Ensemble, rec, comment: str) -> str:
+    lines = [str(len(ens.symbols)), comment]
+    for sym, (x, y, z) in zip(ens.symbols, rec.coords):
+        lines.append(f"{sym:<2s} {x:14.8f} {y:14.8f} {z:14.8f}")
+    return "\n".join(lines) + "\n"
+
+
+def _xyz_comment(ens: Ensemble, unit: EnergyUnit, rec) -> str:
+    shapes = ",".join(r.shape.value for r in rec.rings)
+    return (
+        f"{ens.name} | conformer {rec.id} | E_rel={unit.from_kj(rec.relative_energy):.4f} {unit.value} "
+        f"| population={rec.population:.6f} | method={ens.method} | T={ens.temperature:.2f} K | rings={shapes}"
+    )
+
+
+def xyz_text(ens: Ensemble, unit: EnergyUnit = EnergyUnit.KJ) -> str:
+    """Multi-frame XYZ text, lowest energy first."""
+    return "".join(_xyz_block(ens, rec, _xyz_comment(ens, unit, rec)) for rec in ens.conformers)
+
+
+def csv_text(ens: Ensemble, unit: EnergyUnit = EnergyUnit.KJ) -> str:
+    """One row per conformer."""
+    buf = io.StringIO()
+    levels = sorted({k for rec in ens.conformers for k in rec.energies})
+    header = ["id", f"relative_energy_{unit.name.lower()}", "population", "degeneracy"]
+    header += [f"energy_{lvl}" for lvl in levels]
+    header += [f"ring{k}_shape" for k in range(len(ens.ring_atoms))]
+    header += [f"ring{k}_Q" for k in range(len(ens.ring_atoms))]
+    header += ["substituents", "families", "converged", "origin"]
+    writer = csv.writer(buf, lineterminator="\n")
+    writer.writerow(header)
+    for rec in ens.conformers:
+        row = [rec.id, f"{unit.from_kj(rec.relative_energy):.4f}", f"{rec.population:.6f}", rec.degeneracy]
+        row += [f"{unit.from_kj(rec.energies[lvl]):.4f}" if lvl in rec.energies else "" for lvl in levels]
+        row += [r.shape.value for r in rec.rings]
+        row += [f"{r.q_total:.4f}" for r in rec.rings]
+        row += [
+            "; ".join(f"{ens.symbols[s.atom]}{s.atom}:{s.position.value}" for s in rec.substituents),
+            " ".join(rec.families),
+            "yes" if rec.converged else "no",
+            rec.origin,
+        ]
+        writer.writerow(row)
+    return buf.getvalue()
+
+
+def _atomic_write(path: Path, text: str) -> None:
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", dir=str(path.parent))
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8") as fh:
+            fh.write(text)
+        os.replace(tmp, path)
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
+
+
+def _write_directory(ens: Ensemble, path: Path, unit: EnergyUnit) -> list[Path]:
+    if path.exists() and not path.is_dir():
+        raise OptionError(f"{str(path)!r} exists and is not a directory")
+    written = []
+    for rank, rec in enumerate(ens.conformers, start=1):
+        target = path / f"rank_{rank:03d}.xyz"
+        _atomic_write(target, _xyz_block(ens, rec, _xyz_comment(ens, unit, rec)))
+        written.append(target)
+    return written
+
+
+_TEXT_WRITERS: dict[str, Callable[[Ensemble, EnergyUnit], str]] = {
+    ".sdf": sdf_text,
+    ".sd": sdf_text,
+    ".xyz": xyz_text,
+    ".csv": csv_text,
+    ".json": lambda ens, unit: ens.to_json(unit) + "\n",
+}
+
+#: Suffixes understood by :func:`write` (plus directories).
+SUPPORTED_SUFFIXES = tuple(_TEXT_WRITERS)
+
+
+def _is_directory_target(path_text: str) -> bool:
+    path = Path(path_text)
+    return path_text.endswith(("/", os.sep)) or path.is_dir() or path.suffix == ""
+
+
+def check_target(path_text: str) -> None:
+    """Raise OptionError if ``path_text`` names a format chairbuild cannot write."""
+    if _is_directory_target(path_text):
+        return
+    suffix = Path(path_text).suffix.lower()
+    if suffix not in _TEXT_WRITERS:
+        raise OptionError(
+            f"cannot write {path_text!r}: unknown extension {suffix!r}; use one of "
+            f"{', '.join(SUPPORTED_SUFFIXES)} or a directory"
+        )
+
+
+def write(ens: Ensemble, path_text: str, unit: EnergyUnit = EnergyUnit.KJ) -> list[Path]:
+    """Write ``ens`` to ``path_text``; the format follows the extension. Returns the files written."""
+    check_target(path_text)
+    if _is_directory_target(path_text):
+        return _write_directory(ens, Path(path_text), unit)
+    path = Path(path_text)
+    _atomic_write(path, _TEXT_WRITERS[path.suffix.lower()](ens, unit))
+    return [path]
+
+
+def format_table(ens: Ensemble, unit: EnergyUnit = EnergyUnit.KJ, max_rows: int = 25) -> str:
+    """Human-readable summary: conformers, ring families, notes."""
+    u = unit.value
+    lines = [
+        f"{ens.name}   {ens.smiles}",
+        f"method {ens.method}, ranked by {ens.ranking.replace('_', ' ')}, T = {ens.temperature:.2f} K, "
+        f"energies in {u}, window {unit.from_kj(ens.window):.1f} {u}",
+        "",
+    ]
+    ring_cols = [f"ring{k}" for k in range(len(ens.ring_atoms))]
+    head = f"{'id':>3} {'dE':>8} {'pop %':>7} {'g':>2}  " + " ".join(f"{c:<11}" for c in ring_cols) + "  substituents"
+    lines.append(head)
+    lines.append("-" * len(head))
+    for rec in ens.conformers[:max_rows]:
+        subs = ", ".join(
+            f"{ens.symbols[s.atom]}{s.atom}({s.group}) {_short(s.position.value)}" for s in rec.substituents if not _is_ring_bond(ens, s)
+        )
+        shapes = " ".join(f"{r.shape.value:<11}" for r in rec.rings)
+        lines.append(
+            f"{rec.id:>3} {unit.from_kj(rec.relative_energy):8.2f} {100 * rec.population:7.2f} {rec.degeneracy:>2}  {shapes}  {subs}"
+        )
+    if len(ens.conformers) > max_rows:
+        lines.append(f"... {len(ens.conformers) - max_rows} more conformer(s) in the file outputs")
+    for r in range(len(ens.ring_atoms)):
+        fams = [f for f in ens.families if f.ring_index == r]
+        if not fams:
+            continue
+        lines += ["", f"ring {r} (atoms {'-'.join(map(str, ens.ring_atoms[r]))}): families"]
+        lines.append(f"  {'pop %':>7} {'dG':>7} {'K':>9} {'additive':>9} {'model':>7}  family")
+        for f in fams:
+            add = "" if f.additive_energy is None else f"{unit.from_kj(f.additive_energy):9.2f}"
+            model = "" if f.model_energy is None else f"{unit.from_kj(f.model_energy):7.2f}"
+            kval = f"{f.equilibrium_constant:9.2f}" if f.equilibrium_constant < 1e6 else f"{'>1e6':>9}"
+            flag = "  << additive estimate disagrees" if f.disagreement else ""
+            lines.append(
+                f"  {100 * f.population:7.2f} {unit.from_kj(f.delta_g):7.2f} {kval} {add:>9} {model:>7}  {f.label}{flag}"
+            )
+    if ens.notes:
+        lines += ["", "notes:"] + [f"  - {n}" for n in ens.notes]
+    if ens.rejected:
+        lines.append(f"  - {len(ens.rejected)} structure(s) rejected (see JSON 'rejected' for status and reason)")
+    return "\n".join(lines)
+
+
+def _short(position: str) -> str:
+    return {"axial": "ax", "equatorial": "eq"}.get(position, position)
+
+
+def _is_ring_bond(ens: Ensemble, sub) -> bool:
+    return any(sub.atom in ring for ring in ens.ring_atoms)
+
+
+def write_many(ensembles: Sequence[Ensemble], path_text: str, unit: EnergyUnit) -> list[Path]:
+    """Write several ensembles (one per diastereomer) to ``path_text``, numbering them when more than one."""
+    if len(ensembles) == 1:
+        return write(ensembles[0], path_text, unit)
+    written = []
+    for k, ens in enumerate(ensembles, start=1):
+        if _is_directory_target(path_text):
+            target = str(Path(path_text) / f"isomer_{k}") + "/"
+        else:
+            p = Path(path_text)
+            target = str(p.with_name(f"{p.stem}_isomer{k}{p.suffix}"))
+        written += write(ens, target, unit)
+    return written

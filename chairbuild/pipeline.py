@@ -1,0 +1,285 @@
+"""The analysis pipeline: input → rings → build → minimise → rerank → thermo → describe → result.
+
+:func:`analyze` runs it for one molecule and returns the frozen
+:class:`~chairbuild.result.Ensemble`; :func:`analyze_all` returns one ensemble per
+diastereomer when stereochemistry is left open and ``enumerate_stereo`` is set.
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass, field, replace
+from typing import Any
+
+import numpy as np
+
+from chairbuild.constants import T_DEFAULT
+from chairbuild.errors import OptionError, StereoError
+from chairbuild.minimise import ForceFieldVariant
+
+__all__ = ["AnalysisOptions", "analyze", "analyze_all", "DEFAULT_WINDOW_KJ"]
+
+#: Default energy window (kJ/mol): keeps cyclohexane's twist-boat (about 23 kJ/mol above the chair).
+DEFAULT_WINDOW_KJ = 30.0
+
+
+@dataclass(frozen=True)
+class AnalysisOptions:
+    """Options of one analysis (energies in kJ/mol, temperature in K).
+
+    Attributes
+    ----------
+    forcefield : ForceFieldVariant
+        MMFF94 (default) or MMFF94s.
+    temperature : float
+        K, default 298.15.
+    window : float
+        Keep conformers within this energy (kJ/mol) of the lowest; applied before the
+        Boltzmann weighting.
+    max_rotamers : int
+        Cap on rotamer combinations per ring-state combination (see :mod:`chairbuild.build`).
+    twist_boats : bool
+        Build the twist-boat states too.
+    threads : int or None
+        CPU threads for OpenMM (None: OpenMM's default).
+    progress : bool
+        Show progress bars on stderr.
+    """
+
+    forcefield: ForceFieldVariant = ForceFieldVariant.MMFF94
+    temperature: float = T_DEFAULT
+    window: float = DEFAULT_WINDOW_KJ
+    max_rotamers: int = 81
+    twist_boats: bool = True
+    threads: int | None = None
+    progress: bool = False
+    extra: dict[str, Any] = field(default_factory=dict)
+
+    def validate(self) -> "AnalysisOptions":
+        """Return self after checking ranges; raise OptionError on a bad value."""
+        if not isinstance(self.forcefield, ForceFieldVariant):
+            object.__setattr__(self, "forcefield", ForceFieldVariant.parse(str(self.forcefield)))
+        if not (np.isfinite(self.temperature) and self.temperature > 0):
+            raise OptionError(f"temperature must be a positive number of kelvin, got {self.temperature}")
+        if not (np.isfinite(self.window) and self.window > 0):
+            raise OptionError(f"window must be a positive energy, got {self.window}")
+        if self.max_rotamers < 1:
+            raise OptionError(f"max_rotamers must be at least 1, got {self.max_rotamers}")
+        if self.threads is not None and self.threads < 1:
+            raise OptionError(f"threads must be at least 1, got {self.threads}")
+        return self
+
+
+def _options(kwargs: dict[str, Any]) -> AnalysisOptions:
+    known = set(AnalysisOptions.__dataclass_fields__) - {"extra"}
+    unknown = sorted(set(kwargs) - known)
+    if unknown:
+        raise OptionError(f"unknown option(s): {', '.join(unknown)}; known: {', '.join(sorted(known))}")
+    return AnalysisOptions(**kwargs).validate()
+
+
+def analyze(molecule: str, *, name: str | None = None, record: int | None = None, **options: Any):
+    """Analyse one molecule and return its conformer ensemble.
+
+    Parameters
+    ----------
+    molecule : str
+        SMILES or the path of an SDF/MOL file.
+    name : str, optional
+    record : int, optional
+        1-based record of a multi-record SDF.
+    **options
+        Fields of :class:`AnalysisOptions`; an unknown name raises OptionError.
+
+    Returns
+    -------
+    chairbuild.result.Ensemble
+
+    Raises
+    ------
+    InputError, StereoError, OptionError, ForceFieldError
+    """
+    ensembles = analyze_all(molecule, name=name, record=record, enumerate_stereo=False, **options)
+    return ensembles[0]
+
+
+def analyze_all(
+    molecule: str,
+    *,
+    name: str | None = None,
+    record: int | None = None,
+    enumerate_stereo: bool = False,
+    **options: Any,
+):
+    """Like :func:`analyze`, but returns a list: one ensemble per diastereomer with ``enumerate_stereo``."""
+    from chairbuild.input import read_molecules
+
+    opts = _options(options)
+    prepared = read_molecules(molecule, record=record, enumerate_stereo=enumerate_stereo, name=name)
+    if len(prepared) > 1 and not enumerate_stereo:
+        raise StereoError("several diastereomers; use enumerate_stereo")
+    return [_run_one(p, opts) for p in prepared]
+
+
+def _run_one(prepared, opts: AnalysisOptions):
+    from chairbuild import __version__
+    from chairbuild.build import build_starting_structures
+    from chairbuild.minimise import deduplicate, minimise_starts
+    from chairbuild.rings import analyse_rings
+
+    timings: dict[str, float] = {}
+    t0 = time.perf_counter()
+    mol = prepared.mol
+    analysis = analyse_rings(mol)
+    report = build_starting_structures(
+        mol,
+        analysis,
+        prepared.smiles,
+        prepared.achiral,
+        max_rotamers=opts.max_rotamers,
+        include_twist_boats=opts.twist_boats,
+    )
+    timings["build_s"] = time.perf_counter() - t0
+    t1 = time.perf_counter()
+    minimised, n_min = minimise_starts(
+        mol, report.starts, prepared.smiles, variant=opts.forcefield, threads=opts.threads, progress=opts.progress
+    )
+    distinct = deduplicate(mol, minimised, prepared.achiral)
+    timings["minimise_s"] = time.perf_counter() - t1
+    rejected = [m for m in minimised if m.status.value != "ok"]
+    counts = {
+        "ring_state_combinations": report.n_ring_combinations,
+        "infeasible_combinations": report.n_infeasible,
+        "placements_rejected_by_stereo": report.n_stereo_rejected,
+        "duplicate_starts": report.n_duplicates,
+        "starting_structures": len(report.starts),
+        "minimisations": n_min,
+        "distinct_minima": len(distinct),
+        "rejected": len(rejected),
+    }
+    ensemble = _assemble_result(prepared, analysis, distinct, rejected, opts, report.notes, counts, timings)
+    timings["total_s"] = time.perf_counter() - t0
+    provenance = dict(ensemble.provenance)
+    provenance["timings"] = {k: round(v, 3) for k, v in timings.items()}
+    provenance["chairbuild"] = __version__
+    return replace(ensemble, provenance=provenance)
+
+
+def _assemble_result(prepared, analysis, distinct, rejected, opts, build_notes, counts, timings):
+    from rdkit import Chem
+
+    from chairbuild.describe import describe_conformer
+    from chairbuild.families import build_families, family_keys
+    from chairbuild.result import ConformerRecord, Ensemble
+    from chairbuild.thermo import boltzmann_populations
+
+    t = time.perf_counter()
+    mol = prepared.mol
+    method = opts.forcefield.value
+    notes = list(prepared.notes) + list(build_notes)
+    energies = np.array([d.energy for d in distinct])
+    e_min = energies.min() if len(energies) else 0.0
+    keep = [i for i, e in enumerate(energies) if e - e_min <= opts.window]
+    dropped = len(distinct) - len(keep)
+    if dropped:
+        notes.append(f"{dropped} conformer(s) above the {opts.window:g} kJ/mol window were left out")
+    kept = [distinct[i] for i in keep]
+    pops = boltzmann_populations(
+        np.array([k.energy for k in kept]), opts.temperature, np.array([k.degeneracy for k in kept])
+    ) if kept else np.array([])
+    records = []
+    n_rings = len(analysis.rings)
+    for rank, (k, p) in enumerate(zip(kept, pops)):
+        rings, subs = describe_conformer(mol, analysis, k.coords)
+        records.append(
+            ConformerRecord(
+                id=rank,
+                coords=k.coords,
+                energies={method: k.energy},
+                relative_energy=k.energy - e_min,
+                population=float(p),
+                degeneracy=k.degeneracy,
+                rings=rings,
+                substituents=subs,
+                families=family_keys(n_rings, rings, subs),
+                converged=k.converged,
+                rms_gradient=k.rms_gradient,
+                origin=k.origin,
+            )
+        )
+    rejected_records = []
+    for j, m in enumerate(rejected):
+        rings, subs = describe_conformer(mol, analysis, m.coords)
+        rejected_records.append(
+            ConformerRecord(
+                id=-(j + 1),
+                coords=m.coords,
+                energies={method: m.energy},
+                relative_energy=m.energy - e_min,
+                population=0.0,
+                degeneracy=1,
+                rings=rings,
+                substituents=subs,
+                families=family_keys(n_rings, rings, subs),
+                converged=m.converged,
+                rms_gradient=m.rms_gradient,
+                status=m.status,
+                message=m.message,
+                origin=m.origin,
+            )
+        )
+    symbols = tuple(a.GetSymbol() for a in mol.GetAtoms())
+    families = build_families(records, n_rings, symbols, opts.temperature, _additive_scorer(mol, analysis))
+    timings["describe_s"] = time.perf_counter() - t
+    provenance = {
+        "options": {
+            "forcefield": opts.forcefield.value,
+            "temperature_K": opts.temperature,
+            "window_kJ": opts.window,
+            "max_rotamers": opts.max_rotamers,
+            "twist_boats": opts.twist_boats,
+            "threads": opts.threads,
+        },
+        "counts": counts,
+        "versions": _versions(),
+    }
+    return Ensemble(
+        name=prepared.name,
+        smiles=prepared.smiles,
+        mol_block=Chem.MolToMolBlock(mol, includeStereo=True),
+        symbols=symbols,
+        ring_atoms=tuple(r.atoms for r in analysis.rings),
+        method=method,
+        ranking="energy",
+        temperature=opts.temperature,
+        window=opts.window,
+        conformers=tuple(records),
+        rejected=tuple(rejected_records),
+        families=families,
+        notes=tuple(notes),
+        provenance=provenance,
+    )
+
+
+def _additive_scorer(mol, analysis):
+    from forcefields.additive import AdditiveModel
+
+    models = {r.index: AdditiveModel(mol, [r.atoms]) for r in analysis.rings}
+
+    def score(ring_index: int, coords: np.ndarray):
+        model = models[ring_index]
+        return list(model.terms(coords)), list(model.unscored(coords))
+
+    return score
+
+
+def _versions() -> dict[str, str]:
+    from importlib.metadata import PackageNotFoundError, version
+
+    out = {}
+    for pkg in ("rdkit", "openmm", "numpy", "scipy", "tblite"):
+        try:
+            out[pkg] = version(pkg)
+        except PackageNotFoundError:
+            out[pkg] = "not installed"
+    return out

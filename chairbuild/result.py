@@ -1,0 +1,473 @@
+"""The one result object of chairbuild, and its one serializer.
+
+An analysis produces a frozen :class:`Ensemble`: the molecule, one
+:class:`ConformerRecord` per distinct conformer (coordinates, energies per level,
+convergence, population, ring and substituent descriptors), one :class:`FamilyRecord`
+per ring state family (the "chair with X axial" bookkeeping a chemist does by hand) and
+the provenance of the run. The CLI, the exporters and the viewer only read it.
+
+Units inside the result: Å for coordinates, kJ/mol for energies, K for temperature.
+Conversion to kcal/mol happens only in :meth:`Ensemble.to_dict` (``unit="kcal/mol"``)
+and in the text output.
+"""
+
+from __future__ import annotations
+
+import enum
+import json
+from dataclasses import dataclass, field
+from types import MappingProxyType
+from typing import Any, Mapping
+
+import numpy as np
+
+from chairbuild.constants import KJ_TO_KCAL
+
+__all__ = [
+    "Status",
+    "RingShape",
+    "Position",
+    "EnergyUnit",
+    "RingDescriptor",
+    "SubstituentDescriptor",
+    "ConformerRecord",
+    "FamilyRecord",
+    "AdditiveTerm",
+    "Ensemble",
+    "SCHEMA_VERSION",
+]
+
+#: Version of the JSON layout written by :meth:`Ensemble.to_dict`.
+SCHEMA_VERSION = "1.0"
+
+
+class Status(str, enum.Enum):
+    """Outcome of one conformer's processing."""
+
+    OK = "ok"
+    NOT_CONVERGED = "not-converged"
+    STEREO_CHANGED = "stereo-changed"
+    FAILED = "failed"
+
+
+class RingShape(str, enum.Enum):
+    """Shape of a six-membered ring, classified from its Cremer–Pople coordinates."""
+
+    CHAIR = "chair"
+    TWIST_BOAT = "twist-boat"
+    BOAT = "boat"
+    HALF_CHAIR = "half-chair"
+    ENVELOPE = "envelope"
+    SCREW_BOAT = "screw-boat"
+    PLANAR = "planar"
+
+
+class Position(str, enum.Enum):
+    """Orientation of a ring substituent (see :mod:`chairbuild.describe` for the thresholds)."""
+
+    AXIAL = "axial"
+    EQUATORIAL = "equatorial"
+    PSEUDO_AXIAL = "pseudo-axial"
+    PSEUDO_EQUATORIAL = "pseudo-equatorial"
+    ISOCLINAL = "isoclinal"
+    IN_PLANE = "in-plane"
+
+
+class EnergyUnit(str, enum.Enum):
+    """Energy unit of reported values."""
+
+    KJ = "kJ/mol"
+    KCAL = "kcal/mol"
+
+    @classmethod
+    def parse(cls, text: str) -> "EnergyUnit":
+        """Accept ``kj``, ``kJ/mol``, ``kcal``, ``kcal/mol`` (any case)."""
+        from chairbuild.errors import OptionError
+
+        key = text.strip().lower()
+        if key in ("kj", "kj/mol"):
+            return cls.KJ
+        if key in ("kcal", "kcal/mol"):
+            return cls.KCAL
+        raise OptionError(f"unknown energy unit {text!r}; use 'kj' or 'kcal'")
+
+    def from_kj(self, value: float) -> float:
+        """Convert ``value`` in kJ/mol to this unit."""
+        return value if self is EnergyUnit.KJ else value * KJ_TO_KCAL
+
+    def to_kj(self, value: float) -> float:
+        """Convert ``value`` in this unit to kJ/mol."""
+        return value if self is EnergyUnit.KJ else value / KJ_TO_KCAL
+
+
+def _frozen_array(values: Any) -> np.ndarray:
+    arr = np.array(values, dtype=float)
+    arr.setflags(write=False)
+    return arr
+
+
+@dataclass(frozen=True)
+class RingDescriptor:
+    """One six-membered ring in one conformer.
+
+    Attributes
+    ----------
+    atoms : tuple of int
+        Ring atoms in ring order (0-based input indices).
+    shape : RingShape
+        Shape label from the Cremer–Pople coordinates.
+    q_total : float
+        Cremer–Pople total puckering amplitude Q (Å).
+    theta : float
+        Cremer–Pople θ (degrees, 0–180).
+    phi : float
+        Cremer–Pople φ (degrees, 0–360).
+    torsions : tuple of float
+        The six endocyclic torsions (degrees); torsion k is atoms k, k+1, k+2, k+3.
+    """
+
+    atoms: tuple[int, ...]
+    shape: RingShape
+    q_total: float
+    theta: float
+    phi: float
+    torsions: tuple[float, ...]
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "atoms": list(self.atoms),
+            "shape": self.shape.value,
+            "Q": round(self.q_total, 4),
+            "theta": round(self.theta, 2),
+            "phi": round(self.phi, 2),
+            "torsions": [round(t, 2) for t in self.torsions],
+        }
+
+
+@dataclass(frozen=True)
+class SubstituentDescriptor:
+    """A ring substituent (first atom outside the ring) in one conformer.
+
+    Attributes
+    ----------
+    atom : int
+        Index of the substituent's first atom.
+    ring_atom : int
+        Index of the ring atom it is bonded to.
+    ring_index : int
+        Index of the ring (into :attr:`Ensemble.ring_atoms`).
+    group : str
+        The group as a rooted SMILES fragment (``"C"`` for methyl, ``"O"`` for hydroxy).
+    position : Position
+        Axial, equatorial or, in non-chair rings, the pseudo labels.
+    cos_normal : float
+        |cos| of the angle between the ring–substituent bond and the ring's mean-plane normal.
+    torsions : Mapping[str, float]
+        Key torsions of the substituent (degrees), keyed by the four atom indices.
+    """
+
+    atom: int
+    ring_atom: int
+    ring_index: int
+    group: str
+    position: Position
+    cos_normal: float
+    torsions: Mapping[str, float] = field(default_factory=dict)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "atom": self.atom,
+            "ring_atom": self.ring_atom,
+            "ring_index": self.ring_index,
+            "group": self.group,
+            "position": self.position.value,
+            "cos_normal": round(self.cos_normal, 3),
+            "torsions": {k: round(v, 1) for k, v in self.torsions.items()},
+        }
+
+
+@dataclass(frozen=True)
+class ConformerRecord:
+    """One conformer: geometry, energies per level, descriptors, population.
+
+    Attributes
+    ----------
+    id : int
+        Rank by the ranking energy (0 = lowest) among the conformers with status OK.
+    coords : numpy.ndarray
+        Coordinates (Å), shape (n_atoms, 3), read-only.
+    energies : Mapping[str, float]
+        Absolute energy per level (kJ/mol), e.g. ``{"MMFF94": ..., "GFN2-xTB": ...}``.
+    relative_energy : float
+        Ranking energy minus the lowest ranking energy (kJ/mol).
+    population : float
+        Boltzmann population (0–1) at the ensemble's temperature, degeneracy included.
+    degeneracy : int
+        Number of symmetry-equivalent copies this record stands for.
+    rings, substituents :
+        Descriptors computed on the final geometry.
+    families : tuple of str
+        Family key of each ring (see :class:`FamilyRecord`).
+    converged : bool
+        Whether the last minimisation met its gradient criterion.
+    rms_gradient : float
+        RMS gradient at the final geometry (kJ mol^-1 Å^-1).
+    status : Status
+    message : str
+        Why a record is not OK; notes otherwise.
+    origin : str
+        The starting point it was built from (ring states and rotamer).
+    thermo : Mapping[str, float]
+        ``enthalpy`` and ``free_energy`` (kJ/mol, absolute) when computed.
+    """
+
+    id: int
+    coords: np.ndarray
+    energies: Mapping[str, float]
+    relative_energy: float
+    population: float
+    degeneracy: int
+    rings: tuple[RingDescriptor, ...]
+    substituents: tuple[SubstituentDescriptor, ...]
+    families: tuple[str, ...]
+    converged: bool
+    rms_gradient: float
+    status: Status = Status.OK
+    message: str = ""
+    origin: str = ""
+    thermo: Mapping[str, float] = field(default_factory=dict)
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "coords", _frozen_array(self.coords))
+        object.__setattr__(self, "energies", MappingProxyType(dict(self.energies)))
+        object.__setattr__(self, "thermo", MappingProxyType(dict(self.thermo)))
+
+    def to_dict(self, unit: EnergyUnit, symbols: tuple[str, ...]) -> dict[str, Any]:
+        out: dict[str, Any] = {
+            "id": self.id,
+            "status": self.status.value,
+            "relative_energy": round(unit.from_kj(self.relative_energy), 4),
+            "population": round(self.population, 6),
+            "degeneracy": self.degeneracy,
+            "energy": {k: round(unit.from_kj(v), 4) for k, v in self.energies.items()},
+            "rings": [r.to_dict() for r in self.rings],
+            "substituents": [s.to_dict() for s in self.substituents],
+            "families": list(self.families),
+            "converged": self.converged,
+            "rms_gradient": round(self.rms_gradient, 5),
+            "origin": self.origin,
+            "message": self.message,
+            "coordinates": [[sym, *[round(float(c), 5) for c in xyz]] for sym, xyz in zip(symbols, self.coords)],
+        }
+        for key in ("energy", "enthalpy", "free_energy"):
+            if key in self.thermo:
+                out.setdefault("thermo", {})[key] = round(unit.from_kj(self.thermo[key]), 4)
+        return out
+
+
+@dataclass(frozen=True)
+class AdditiveTerm:
+    """One increment of the additive estimate (an A-value, a gauche or syn-diaxial term).
+
+    Attributes
+    ----------
+    kind : str
+        Increment name as in the data table (``"A-value"``, ``"gauche-butane"``, ...).
+    atoms : tuple of int
+        Atoms involved.
+    value : float
+        Contribution (kJ/mol).
+    source : str
+        Citation of the value, with its flag (P/S/M).
+    """
+
+    kind: str
+    atoms: tuple[int, ...]
+    value: float
+    source: str
+
+    def to_dict(self, unit: EnergyUnit) -> dict[str, Any]:
+        return {"kind": self.kind, "atoms": list(self.atoms), "value": round(unit.from_kj(self.value), 3), "source": self.source}
+
+
+@dataclass(frozen=True)
+class FamilyRecord:
+    """A family of conformers sharing one ring's state (e.g. the chair with C1-methyl axial).
+
+    Attributes
+    ----------
+    key : str
+        Unique key, e.g. ``"ring0:chair[ax:7]"``.
+    ring_index : int
+    label : str
+        Human-readable label, e.g. ``"chair, C7 (C) axial"``.
+    members : tuple of int
+        Conformer ids in this family.
+    population : float
+        Summed population.
+    delta_g : float
+        −RT ln(population / population of the ring's most populated family) (kJ/mol).
+    equilibrium_constant : float
+        population of the most populated family / population of this one (≥ 1).
+    additive_energy : float or None
+        Additive increment estimate relative to the ring's lowest additive family (kJ/mol).
+    additive_terms : tuple of AdditiveTerm
+    model_energy : float or None
+        Lowest relative energy of the members at the ranking level (kJ/mol), relative to
+        the ring's lowest family.
+    disagreement : bool
+        True when additive and model energies differ by more than the ensemble's threshold.
+    """
+
+    key: str
+    ring_index: int
+    label: str
+    members: tuple[int, ...]
+    population: float
+    delta_g: float
+    equilibrium_constant: float
+    additive_energy: float | None = None
+    additive_terms: tuple[AdditiveTerm, ...] = ()
+    model_energy: float | None = None
+    disagreement: bool = False
+
+    def to_dict(self, unit: EnergyUnit) -> dict[str, Any]:
+        def conv(v: float | None) -> float | None:
+            return None if v is None else round(unit.from_kj(v), 4)
+
+        return {
+            "key": self.key,
+            "ring_index": self.ring_index,
+            "label": self.label,
+            "members": list(self.members),
+            "population": round(self.population, 6),
+            "delta_g": conv(self.delta_g),
+            "equilibrium_constant": None if not np.isfinite(self.equilibrium_constant) else round(self.equilibrium_constant, 4),
+            "additive_energy": conv(self.additive_energy),
+            "additive_terms": [t.to_dict(unit) for t in self.additive_terms],
+            "model_energy": conv(self.model_energy),
+            "disagreement": self.disagreement,
+        }
+
+
+@dataclass(frozen=True)
+class Ensemble:
+    """The frozen result of one analysis.
+
+    Attributes
+    ----------
+    name : str
+        Name given by the user, or the input SMILES.
+    smiles : str
+        Canonical isomeric SMILES of the molecule analysed (the one enantiomer, when a
+        mirror-image choice was made).
+    mol_block : str
+        MDL molfile of the molecule with explicit hydrogens, in the atom order the indices
+        refer to (input heavy-atom order, hydrogens after the heavy atoms).
+    symbols : tuple of str
+        Element symbol of each atom.
+    ring_atoms : tuple of tuple of int
+        The six-membered rings, each in ring order.
+    method : str
+        Level used for ranking, e.g. ``"MMFF94"`` or ``"GFN2-xTB/ALPB(water)//MMFF94"``.
+    ranking : str
+        ``"energy"`` or ``"free_energy"``.
+    temperature : float
+        K.
+    window : float
+        Energy window used (kJ/mol).
+    conformers : tuple of ConformerRecord
+        Kept conformers (status OK), sorted by relative energy.
+    rejected : tuple of ConformerRecord
+        Records that failed or were rejected (status not OK), kept as data.
+    families : tuple of FamilyRecord
+    notes : tuple of str
+        Warnings and notes for the user (cap reached, enantiomer choice, ...).
+    provenance : Mapping[str, Any]
+        Versions, options, counts and timings.
+    """
+
+    name: str
+    smiles: str
+    mol_block: str
+    symbols: tuple[str, ...]
+    ring_atoms: tuple[tuple[int, ...], ...]
+    method: str
+    ranking: str
+    temperature: float
+    window: float
+    conformers: tuple[ConformerRecord, ...]
+    rejected: tuple[ConformerRecord, ...] = ()
+    families: tuple[FamilyRecord, ...] = ()
+    notes: tuple[str, ...] = ()
+    provenance: Mapping[str, Any] = field(default_factory=dict)
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "provenance", MappingProxyType(dict(self.provenance)))
+
+    # ------------------------------------------------------------------ access
+    def __len__(self) -> int:
+        return len(self.conformers)
+
+    def __iter__(self):
+        return iter(self.conformers)
+
+    def family(self, key: str) -> FamilyRecord:
+        """Return the family with ``key``; raise KeyError if absent."""
+        for fam in self.families:
+            if fam.key == key:
+                return fam
+        raise KeyError(key)
+
+    def to_rdkit(self, include_rejected: bool = False):
+        """Return an RDKit molecule with one conformer per record (in rank order)."""
+        from rdkit import Chem
+        from rdkit.Geometry import Point3D
+
+        mol = Chem.MolFromMolBlock(self.mol_block, removeHs=False)
+        mol.RemoveAllConformers()
+        records = self.conformers + (self.rejected if include_rejected else ())
+        for rec in records:
+            conf = Chem.Conformer(mol.GetNumAtoms())
+            for i, (x, y, z) in enumerate(rec.coords):
+                conf.SetAtomPosition(i, Point3D(float(x), float(y), float(z)))
+            conf.SetId(rec.id)
+            mol.AddConformer(conf, assignId=False)
+        return mol
+
+    # -------------------------------------------------------------- serialize
+    def to_dict(self, unit: EnergyUnit | str = EnergyUnit.KJ) -> dict[str, Any]:
+        """The JSON contract (see README, "JSON output")."""
+        unit = unit if isinstance(unit, EnergyUnit) else EnergyUnit.parse(unit)
+        return {
+            "schema": SCHEMA_VERSION,
+            "name": self.name,
+            "smiles": self.smiles,
+            "method": self.method,
+            "ranking": self.ranking,
+            "temperature_K": self.temperature,
+            "energy_unit": unit.value,
+            "window": round(unit.from_kj(self.window), 4),
+            "ring_atoms": [list(r) for r in self.ring_atoms],
+            "conformers": [c.to_dict(unit, self.symbols) for c in self.conformers],
+            "families": [f.to_dict(unit) for f in self.families],
+            "rejected": [c.to_dict(unit, self.symbols) for c in self.rejected],
+            "notes": list(self.notes),
+            "provenance": _jsonable(dict(self.provenance)),
+        }
+
+    def to_json(self, unit: EnergyUnit | str = EnergyUnit.KJ, indent: int | None = 2) -> str:
+        """Serialize :meth:`to_dict` as a JSON string."""
+        return json.dumps(self.to_dict(unit), indent=indent)
+
+
+def _jsonable(value: Any) -> Any:
+    if isinstance(value, Mapping):
+        return {str(k): _jsonable(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_jsonable(v) for v in value]
+    if isinstance(value, enum.Enum):
+        return value.value
+    if isinstance(value, (np.floating, np.integer)):
+        return value.item()
+    return value
