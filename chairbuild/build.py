@@ -260,12 +260,65 @@ class _CoreProblem:
         values = np.concatenate([s.torsions() for s in states] + [np.zeros(len(self.quads) - self.n_targeted)])
         return np.radians(np.where(self.fixed_zero, 0.0, values))
 
+    def jacobian(self, x: np.ndarray, targets: np.ndarray) -> np.ndarray:
+        """Analytic Jacobian of :meth:`residuals` (torsion derivatives after Blondel & Karplus,
+        J. Comput. Chem. 1996, 17, 1132)."""
+        p = x.reshape(-1, 3)
+        n_b, n_a, n_t = len(self.bonds), len(self.angles), len(self.quads)
+        jac = np.zeros((n_b + n_a + n_t, p.size))
+        # bonds
+        d = p[self.bonds[:, 0]] - p[self.bonds[:, 1]]
+        r = np.linalg.norm(d, axis=1)
+        g = d / r[:, None] / 0.01
+        rows = np.arange(n_b)
+        for col in range(3):
+            jac[rows, 3 * self.bonds[:, 0] + col] += g[:, col]
+            jac[rows, 3 * self.bonds[:, 1] + col] -= g[:, col]
+        # angles
+        a, b, c = self.angles[:, 0], self.angles[:, 1], self.angles[:, 2]
+        u, v = p[a] - p[b], p[c] - p[b]
+        lu, lv = np.linalg.norm(u, axis=1), np.linalg.norm(v, axis=1)
+        cosang = np.clip(np.sum(u * v, axis=1) / (lu * lv), -1.0, 1.0)
+        sinang = np.sqrt(np.maximum(1.0 - cosang**2, 1e-12))
+        scale = 1.0 / np.radians(2.0)
+        da = -(v / (lu * lv)[:, None] - cosang[:, None] * u / (lu**2)[:, None]) / sinang[:, None] * scale
+        dc = -(u / (lu * lv)[:, None] - cosang[:, None] * v / (lv**2)[:, None]) / sinang[:, None] * scale
+        rows = n_b + np.arange(n_a)
+        for col in range(3):
+            jac[rows, 3 * a + col] += da[:, col]
+            jac[rows, 3 * c + col] += dc[:, col]
+            jac[rows, 3 * b + col] -= da[:, col] + dc[:, col]
+        # torsions
+        q = self.quads
+        f = p[q[:, 0]] - p[q[:, 1]]
+        gg = p[q[:, 1]] - p[q[:, 2]]
+        h = p[q[:, 3]] - p[q[:, 2]]
+        aa = np.cross(f, gg)
+        bb = np.cross(h, gg)
+        a2 = np.sum(aa * aa, axis=1)
+        b2 = np.sum(bb * bb, axis=1)
+        lg = np.linalg.norm(gg, axis=1)
+        fg = np.sum(f * gg, axis=1)
+        hg = np.sum(h * gg, axis=1)
+        d0 = -(lg / a2)[:, None] * aa
+        d3 = (lg / b2)[:, None] * bb
+        d1 = -d0 + (fg / (a2 * lg))[:, None] * aa - (hg / (b2 * lg))[:, None] * bb
+        d2 = -d3 - (fg / (a2 * lg))[:, None] * aa + (hg / (b2 * lg))[:, None] * bb
+        weights = np.where(self.fixed_zero, 1.0 / np.radians(2.0), 1.0 / np.radians(10.0))
+        rows = n_b + n_a + np.arange(n_t)
+        for k, dk in enumerate((d0, d1, d2, d3)):
+            for col in range(3):
+                np.add.at(jac, (rows, 3 * q[:, k] + col), dk[:, col] * weights)
+        return jac
+
     def solve(self, states: Sequence[RingState], guesses: Sequence[np.ndarray]) -> np.ndarray | None:
         """Ideal coordinates of the system's atoms for ``states``, or None if unreachable."""
         targets = self.torsion_targets(states)
         best, best_dev = None, np.inf
         for guess in guesses:
-            fit = least_squares(self.residuals, guess.ravel(), args=(targets,), method="lm", max_nfev=4000)
+            fit = least_squares(
+                self.residuals, guess.ravel(), jac=self.jacobian, args=(targets,), method="lm", xtol=1e-6, max_nfev=400
+            )
             p = fit.x.reshape(-1, 3)
             tors = _dihedral_rad(p[self.quads])
             dev = np.degrees(np.abs(_wrap(tors - targets)))[~self.fixed_zero]
