@@ -99,7 +99,7 @@ def build_families(
         ref_key = min(add_totals, key=add_totals.get) if add_totals else None
         for key in sorted(members, key=lambda k: -pops[k]):
             p = pops[key]
-            delta_g = -rt * np.log(p / p_ref) if p > 0 else np.inf
+            delta_g = -rt * np.log(p / p_ref) + 0.0 if p > 0 else np.inf
             k_eq = p_ref / p if p > 0 else np.inf
             additive_energy = model_energy = None
             terms: tuple[AdditiveTerm, ...] = ()
@@ -109,7 +109,7 @@ def build_families(
                 terms = tuple(add_terms[key][0])
                 additive_energy = add_totals[key] - add_totals[ref_key]
                 p_add_ref = pops[ref_key]
-                model_energy = -rt * np.log(p / p_add_ref) if p > 0 else np.inf
+                model_energy = -rt * np.log(p / p_add_ref) + 0.0 if p > 0 else np.inf
                 flag = bool(abs(model_energy - additive_energy) > DISAGREEMENT_KJ)
                 unscored = add_terms[key][1]
                 if unscored:

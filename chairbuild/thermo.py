@@ -240,6 +240,19 @@ def is_linear(
 
     The criterion is ``I_min <= M tolerance^2``: the mass-weighted RMS distance of the
     atoms from the principal axis of the smallest moment is at most ``tolerance`` (Å).
+
+    Parameters
+    ----------
+    masses_amu : array_like
+        Masses, u, shape ``(n,)``.
+    coords_a : array_like
+        Coordinates, Å, shape ``(n, 3)``.
+    tolerance : float
+        Å (default 0.01).
+
+    Returns
+    -------
+    bool
     """
     m, x = _masses_and_coords(masses_amu, coords_a)
     if m.size < 2:
@@ -394,8 +407,32 @@ def free_rotor_entropy(
     return R_KJ * (0.5 + np.log(np.sqrt(8.0 * math.pi**3 * mu_eff * K_B * t / H_PLANCK**2)))
 
 
-def qrrho_weights(frequencies_cm: Any, cutoff_cm: float = 100.0, alpha: float = 4) -> np.ndarray:
-    """Return the damping ``w = 1 / (1 + (nu0 / nu)^alpha)`` of each mode."""
+def qrrho_weights(
+    frequencies_cm: Any, cutoff_cm: float = 100.0, alpha: float = 4
+) -> np.ndarray:
+    """Return the quasi-RRHO damping ``w = 1 / (1 + (nu0 / nu)^alpha)`` of each mode.
+
+    Parameters
+    ----------
+    frequencies_cm : array_like
+        Real wavenumbers > 0, cm^-1.
+    cutoff_cm : float
+        ``nu0``, cm^-1 (default 100; Grimme, Chem. Eur. J. 2012, 18, 9955).
+    alpha : float
+        Exponent (default 4).
+
+    Returns
+    -------
+    numpy.ndarray
+        Weights in (0, 1): 1 means harmonic oscillator, 0 free rotor.
+
+    Raises
+    ------
+    InputError
+        A frequency not > 0.
+    OptionError
+        ``cutoff_cm`` or ``alpha`` not > 0.
+    """
     nu = _as_vector(np.atleast_1d(frequencies_cm), "frequencies")
     if np.any(nu <= 0.0):
         raise InputError("per-mode terms need real frequencies > 0 cm^-1")
