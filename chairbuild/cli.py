@@ -53,6 +53,16 @@ def _add_analysis_options(p: argparse.ArgumentParser) -> None:
     )
     p.add_argument("--units", choices=["kj", "kcal"], default="kj", help="energy unit of all output (default kj)")
     p.add_argument("--forcefield", choices=["mmff94", "mmff94s"], default="mmff94", help="MMFF variant (default mmff94)")
+    p.add_argument(
+        "--method",
+        choices=["mmff94", "gfn2"],
+        default="mmff94",
+        help="final level: mmff94 (default, fast) or gfn2 (re-optimise the MMFF ensemble with GFN2-xTB)",
+    )
+    p.add_argument("--rerank", choices=["gfn2"], default=None, help="GFN2-xTB single points at the MMFF geometries")
+    p.add_argument("--solvent", default=None, help="implicit solvent for GFN2-xTB (a name ALPB/GBSA knows, e.g. water, chloroform)")
+    p.add_argument("--solvation", choices=["alpb", "gbsa"], default="alpb", help="solvation model for --solvent (default alpb)")
+    p.add_argument("--free-energy", action="store_true", help="rank and weight by the qRRHO free energy G instead of E")
     p.add_argument("--no-twist-boats", action="store_true", help="build chairs only")
     p.add_argument(
         "--max-rotamers", type=_positive_int, default=81, help="cap on rotamer combinations per ring state (default 81)"
@@ -97,6 +107,11 @@ def _analysis_kwargs(args: argparse.Namespace) -> dict:
     kwargs = {
         "temperature": args.temperature,
         "forcefield": args.forcefield,
+        "method": args.method,
+        "rerank": args.rerank,
+        "solvent": args.solvent,
+        "solvation_model": args.solvation,
+        "free_energy": args.free_energy,
         "twist_boats": not args.no_twist_boats,
         "max_rotamers": args.max_rotamers,
         "threads": args.threads,

@@ -18,7 +18,7 @@ from pathlib import Path
 from typing import Callable, Sequence
 
 from chairbuild.errors import OptionError
-from chairbuild.result import EnergyUnit, Ensemble
+from chairbuild.result import THERMO_ENERGY_KEYS, EnergyUnit, Ensemble
 
 __all__ = ["write", "format_table", "sdf_text", "xyz_text", "csv_text", "SUPPORTED_SUFFIXES"]
 
@@ -37,7 +37,10 @@ def _energy_fields(ens: Ensemble, unit: EnergyUnit, rec) -> dict[str, str]:
     for level, value in rec.energies.items():
         fields[f"energy {level} ({u})"] = f"{unit.from_kj(value):.4f}"
     for key, value in rec.thermo.items():
-        fields[f"{key} ({u})"] = f"{unit.from_kj(value):.4f}"
+        if key in THERMO_ENERGY_KEYS:
+            fields[f"{key} ({u})"] = f"{unit.from_kj(value):.4f}"
+        else:
+            fields[key] = f"{value:g}"
     for k, ring in enumerate(rec.rings):
         fields[f"ring{k}_shape"] = ring.shape.value
         fields[f"ring{k}_cremer_pople"] = f"Q={ring.q_total:.4f} theta={ring.theta:.2f} phi={ring.phi:.2f}"

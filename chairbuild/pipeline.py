@@ -30,7 +30,17 @@ class AnalysisOptions:
     Attributes
     ----------
     forcefield : ForceFieldVariant
-        MMFF94 (default) or MMFF94s.
+        MMFF94 (default) or MMFF94s, used to build and minimise.
+    method : str
+        ``"mmff94"`` (default) or ``"gfn2"`` (re-optimise with GFN2-xTB).
+    rerank : str or None
+        ``"gfn2"``: GFN2-xTB single points at the MMFF geometries.
+    solvent : str or None
+        Implicit solvent for GFN2-xTB (a name ALPB/GBSA knows); None is the gas phase.
+    solvation_model : str
+        ``"alpb"`` (default) or ``"gbsa"``.
+    free_energy : bool
+        Rank and weight by the qRRHO free energy G instead of the energy E.
     temperature : float
         K, default 298.15.
     window : float
@@ -47,6 +57,11 @@ class AnalysisOptions:
     """
 
     forcefield: ForceFieldVariant = ForceFieldVariant.MMFF94
+    method: str = "mmff94"
+    rerank: str | None = None
+    solvent: str | None = None
+    solvation_model: str = "alpb"
+    free_energy: bool = False
     temperature: float = T_DEFAULT
     window: float = DEFAULT_WINDOW_KJ
     max_rotamers: int = 81
@@ -57,8 +72,30 @@ class AnalysisOptions:
 
     def validate(self) -> "AnalysisOptions":
         """Return self after checking ranges; raise OptionError on a bad value."""
+        from chairbuild.rerank import Level
+
         if not isinstance(self.forcefield, ForceFieldVariant):
             object.__setattr__(self, "forcefield", ForceFieldVariant.parse(str(self.forcefield)))
+        object.__setattr__(self, "method", Level.parse(self.method))
+        if self.rerank is not None:
+            rerank = Level.parse(self.rerank)
+            if rerank is not Level.GFN2:
+                raise OptionError("rerank accepts only 'gfn2'")
+            if self.method is Level.GFN2:
+                raise OptionError("rerank=gfn2 re-scores MMFF geometries; it cannot be combined with method=gfn2")
+            object.__setattr__(self, "rerank", rerank)
+        uses_xtb = self.method is Level.GFN2 or self.rerank is not None
+        if self.solvent is not None:
+            if not uses_xtb:
+                raise OptionError("a solvent needs the GFN2-xTB level: add method='gfn2' or rerank='gfn2'")
+            from forcefields.xtb import available_solvents
+
+            valid = available_solvents(self.solvation_model, include_aliases=True)
+            if self.solvent.strip().lower() not in [v.lower() for v in valid]:
+                raise OptionError(
+                    f"unknown solvent {self.solvent!r} for {self.solvation_model.upper()}; valid: "
+                    + ", ".join(available_solvents(self.solvation_model))
+                )
         if not (np.isfinite(self.temperature) and self.temperature > 0):
             raise OptionError(f"temperature must be a positive number of kelvin, got {self.temperature}")
         if not (np.isfinite(self.window) and self.window > 0):
@@ -125,6 +162,7 @@ def _run_one(prepared, opts: AnalysisOptions):
     from chairbuild import __version__
     from chairbuild.build import build_starting_structures
     from chairbuild.minimise import deduplicate, minimise_starts
+    from chairbuild.rerank import rerank_structures
     from chairbuild.rings import analyse_rings
 
     timings: dict[str, float] = {}
@@ -147,6 +185,25 @@ def _run_one(prepared, opts: AnalysisOptions):
     distinct = deduplicate(mol, minimised, prepared.achiral)
     timings["minimise_s"] = time.perf_counter() - t1
     rejected = [m for m in minimised if m.status.value != "ok"]
+    t2 = time.perf_counter()
+    ranked, rejected_rerank, method_label, n_xtb = rerank_structures(
+        mol,
+        distinct,
+        prepared.smiles,
+        prepared.achiral,
+        forcefield=opts.forcefield,
+        method=opts.method,
+        rerank=opts.rerank,
+        solvent=opts.solvent,
+        solvation_model=opts.solvation_model,
+        free_energy=opts.free_energy,
+        temperature=opts.temperature,
+        window=opts.window,
+        threads=opts.threads,
+        progress=opts.progress,
+    )
+    rejected += rejected_rerank
+    timings["rerank_s"] = time.perf_counter() - t2
     counts = {
         "ring_state_combinations": report.n_ring_combinations,
         "infeasible_combinations": report.n_infeasible,
@@ -155,9 +212,10 @@ def _run_one(prepared, opts: AnalysisOptions):
         "starting_structures": len(report.starts),
         "minimisations": n_min,
         "distinct_minima": len(distinct),
+        "gfn2_optimisations": n_xtb,
         "rejected": len(rejected),
     }
-    ensemble = _assemble_result(prepared, analysis, distinct, rejected, opts, report.notes, counts, timings)
+    ensemble = _assemble_result(prepared, analysis, ranked, rejected, opts, method_label, report.notes, counts, timings)
     timings["total_s"] = time.perf_counter() - t0
     provenance = dict(ensemble.provenance)
     provenance["timings"] = {k: round(v, 3) for k, v in timings.items()}
@@ -165,7 +223,7 @@ def _run_one(prepared, opts: AnalysisOptions):
     return replace(ensemble, provenance=provenance)
 
 
-def _assemble_result(prepared, analysis, distinct, rejected, opts, build_notes, counts, timings):
+def _assemble_result(prepared, analysis, ranked, rejected, opts, method_label, build_notes, counts, timings):
     from rdkit import Chem
 
     from chairbuild.describe import describe_conformer
@@ -175,38 +233,44 @@ def _assemble_result(prepared, analysis, distinct, rejected, opts, build_notes, 
 
     t = time.perf_counter()
     mol = prepared.mol
-    method = opts.forcefield.value
     notes = list(prepared.notes) + list(build_notes)
-    energies = np.array([d.energy for d in distinct])
+    energies = np.array([r.ranking_energy for r in ranked])
     e_min = energies.min() if len(energies) else 0.0
     keep = [i for i, e in enumerate(energies) if e - e_min <= opts.window]
-    dropped = len(distinct) - len(keep)
+    dropped = len(ranked) - len(keep)
     if dropped:
         notes.append(f"{dropped} conformer(s) above the {opts.window:g} kJ/mol window were left out")
-    kept = [distinct[i] for i in keep]
-    pops = boltzmann_populations(
-        np.array([k.energy for k in kept]), opts.temperature, np.array([k.degeneracy for k in kept])
-    ) if kept else np.array([])
+    kept = [ranked[i] for i in keep]
+    pops = (
+        boltzmann_populations(
+            np.array([k.ranking_energy for k in kept]), opts.temperature, np.array([k.structure.degeneracy for k in kept])
+        )
+        if kept
+        else np.array([])
+    )
     records = []
     n_rings = len(analysis.rings)
     for rank, (k, p) in enumerate(zip(kept, pops)):
-        rings, subs = describe_conformer(mol, analysis, k.coords)
+        s = k.structure
+        rings, subs = describe_conformer(mol, analysis, s.coords)
         records.append(
             ConformerRecord(
                 id=rank,
-                coords=k.coords,
-                energies={method: k.energy},
-                relative_energy=k.energy - e_min,
+                coords=s.coords,
+                energies=k.energies,
+                relative_energy=k.ranking_energy - e_min,
                 population=float(p),
-                degeneracy=k.degeneracy,
+                degeneracy=s.degeneracy,
                 rings=rings,
                 substituents=subs,
                 families=family_keys(n_rings, rings, subs),
-                converged=k.converged,
-                rms_gradient=k.rms_gradient,
-                origin=k.origin,
+                converged=s.converged,
+                rms_gradient=s.rms_gradient,
+                origin=s.origin,
+                thermo=k.thermo,
             )
         )
+    method = method_label
     rejected_records = []
     for j, m in enumerate(rejected):
         rings, subs = describe_conformer(mol, analysis, m.coords)
@@ -214,8 +278,8 @@ def _assemble_result(prepared, analysis, distinct, rejected, opts, build_notes, 
             ConformerRecord(
                 id=-(j + 1),
                 coords=m.coords,
-                energies={method: m.energy},
-                relative_energy=m.energy - e_min,
+                energies={"last level": m.energy},
+                relative_energy=float("nan"),
                 population=0.0,
                 degeneracy=1,
                 rings=rings,
@@ -234,6 +298,11 @@ def _assemble_result(prepared, analysis, distinct, rejected, opts, build_notes, 
     provenance = {
         "options": {
             "forcefield": opts.forcefield.value,
+            "method": opts.method.value,
+            "rerank": None if opts.rerank is None else opts.rerank.value,
+            "solvent": opts.solvent,
+            "solvation_model": opts.solvation_model,
+            "free_energy": opts.free_energy,
             "temperature_K": opts.temperature,
             "window_kJ": opts.window,
             "max_rotamers": opts.max_rotamers,
@@ -250,7 +319,7 @@ def _assemble_result(prepared, analysis, distinct, rejected, opts, build_notes, 
         symbols=symbols,
         ring_atoms=tuple(r.atoms for r in analysis.rings),
         method=method,
-        ranking="energy",
+        ranking="free_energy" if opts.free_energy else "energy",
         temperature=opts.temperature,
         window=opts.window,
         conformers=tuple(records),

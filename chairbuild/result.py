@@ -37,6 +37,9 @@ __all__ = [
     "SCHEMA_VERSION",
 ]
 
+#: Keys of ``ConformerRecord.thermo`` that are absolute energies (kJ/mol in the record).
+THERMO_ENERGY_KEYS = ("energy", "enthalpy", "free_energy", "zpe")
+
 #: Version of the JSON layout written by :meth:`Ensemble.to_dict`.
 SCHEMA_VERSION = "1.0"
 
@@ -218,7 +221,9 @@ class ConformerRecord:
     origin : str
         The starting point it was built from (ring states and rotamer).
     thermo : Mapping[str, float]
-        ``enthalpy`` and ``free_energy`` (kJ/mol, absolute) when computed.
+        ``energy`` (absolute, ranking level, kJ/mol) always; ``enthalpy``, ``free_energy``
+        and ``zpe`` (kJ/mol), ``entropy_J_per_molK``, ``symmetry_number`` and
+        ``imaginary_modes`` when free energies were computed.
     """
 
     id: int
@@ -249,7 +254,7 @@ class ConformerRecord:
             "relative_energy": round(unit.from_kj(self.relative_energy), 4),
             "population": round(self.population, 6),
             "degeneracy": self.degeneracy,
-            "energy": {k: round(unit.from_kj(v), 4) for k, v in self.energies.items()},
+            "energies": {k: round(unit.from_kj(v), 4) for k, v in self.energies.items()},
             "rings": [r.to_dict() for r in self.rings],
             "substituents": [s.to_dict() for s in self.substituents],
             "families": list(self.families),
@@ -259,9 +264,11 @@ class ConformerRecord:
             "message": self.message,
             "coordinates": [[sym, *[round(float(c), 5) for c in xyz]] for sym, xyz in zip(symbols, self.coords)],
         }
-        for key in ("energy", "enthalpy", "free_energy"):
+        for key in THERMO_ENERGY_KEYS:
+            out[key] = round(unit.from_kj(self.thermo[key]), 4) if key in self.thermo else None
+        for key in ("symmetry_number", "imaginary_modes", "entropy_J_per_molK"):
             if key in self.thermo:
-                out.setdefault("thermo", {})[key] = round(unit.from_kj(self.thermo[key]), 4)
+                out[key] = round(float(self.thermo[key]), 4)
         return out
 
 

@@ -235,9 +235,9 @@ def _substituents(mol: Chem.Mol, rings: list[tuple[int, ...]], systems: list[lis
 
 
 def _is_symmetric_top(mol: Chem.Mol, k: int, j: int, ranks: list[int]) -> bool:
-    """True when the neighbours of k other than j are all equivalent (CH3, CF3, C(CH3)3, NH3+)."""
+    """True when k carries three equivalent neighbours besides j (CH3, CF3, C(CH3)3, NH3+)."""
     others = [nb.GetIdx() for nb in mol.GetAtomWithIdx(k).GetNeighbors() if nb.GetIdx() != j]
-    if len(others) < 2:
+    if len(others) != 3:  # NH2, NMe2: the lone pair makes the three positions distinct
         return False
     return len({ranks[o] for o in others}) == 1
 

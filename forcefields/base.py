@@ -45,3 +45,23 @@ class EnergyModel(abc.ABC):
         from chairbuild.errors import ForceFieldError
 
         raise ForceFieldError(f"energy model {self.name!r} provides no gradient")
+
+    def hessian(self, coords: np.ndarray, step: float = 0.005) -> np.ndarray:
+        """Hessian (kJ mol^-1 Å^-2) by central finite differences of the analytic gradient.
+
+        Each Cartesian coordinate is displaced by ±``step`` Å (6N gradient evaluations);
+        the result is symmetrised.
+        """
+        x0 = np.array(coords, dtype=float)
+        n = x0.size
+        hess = np.empty((n, n))
+        flat = x0.ravel()
+        for k in range(n):
+            plus = flat.copy()
+            plus[k] += step
+            minus = flat.copy()
+            minus[k] -= step
+            _, g_plus = self.energy_and_gradient(plus.reshape(x0.shape))
+            _, g_minus = self.energy_and_gradient(minus.reshape(x0.shape))
+            hess[k] = (g_plus.ravel() - g_minus.ravel()) / (2.0 * step)
+        return 0.5 * (hess + hess.T)
