@@ -4,7 +4,7 @@ VENV := .venv
 PY := $(VENV)/bin/python
 STAMP := $(VENV)/.installed
 
-.PHONY: venv demo test test-all bench clean
+.PHONY: venv demo test test-all bench gallery clean
 
 venv: $(STAMP)
 
@@ -12,6 +12,7 @@ $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
 	$(PY) -m pip install --quiet --upgrade pip
 	$(PY) -m pip install --quiet -e '.[test]'
+	$(PY) -m chairbuild.assets fetch || echo "warning: 3Dmol.js not fetched (npm missing?); HTML reports will load it from the network"
 	touch $(STAMP)
 
 demo: $(STAMP)
@@ -25,6 +26,9 @@ test-all: $(STAMP)
 
 bench: $(STAMP)
 	$(PY) tests/benchmarks/run_all.py
+
+gallery: $(STAMP)
+	$(PY) gallery/make_gallery.py --execute --screenshot
 
 clean:
 	rm -rf $(VENV) build *.egg-info

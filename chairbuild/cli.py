@@ -93,6 +93,7 @@ def build_parser() -> argparse.ArgumentParser:
         metavar="PATH",
         help="write results; format by extension (.sdf .xyz .csv .json) or a directory (one XYZ per conformer); repeatable",
     )
+    an.add_argument("--report", metavar="PATH", default=None, help="write a self-contained HTML report (tables, plots, 3D viewer)")
     _add_analysis_options(an)
     demo = sub.add_parser("demo", help="run the built-in demonstration scenario")
     demo.add_argument("--output-dir", default="demo-output", help="where the demo writes its files (default demo-output)")
@@ -132,6 +133,10 @@ def _run_analyze(args: argparse.Namespace) -> int:
     unit = EnergyUnit.parse(args.units)
     for target in args.output:
         check_target(target)
+    if args.report:
+        from chairbuild.report import check_report_path
+
+        check_report_path(args.report)
     ensembles = analyze_all(
         args.molecule,
         name=args.name,
@@ -142,6 +147,10 @@ def _run_analyze(args: argparse.Namespace) -> int:
     for target in args.output:
         for path in write_many(ensembles, target, unit):
             print(f"wrote {path}", file=sys.stderr)
+    if args.report:
+        from chairbuild.report import write_report
+
+        print(f"wrote {write_report(ensembles, args.report)}", file=sys.stderr)
     if args.json:
         payload = ensembles[0].to_dict(unit) if len(ensembles) == 1 else [e.to_dict(unit) for e in ensembles]
         print(json.dumps(payload, indent=2))

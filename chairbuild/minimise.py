@@ -72,7 +72,7 @@ def minimise_starts(
     progress: bool = False,
 ) -> tuple[list[MinimisedStructure], int]:
     """Minimise every start with MMFF in OpenMM; return the structures and the minimisation count."""
-    from tqdm.auto import tqdm
+    from tqdm import tqdm
 
     from forcefields.mmff import MMFFModel
 

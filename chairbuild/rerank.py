@@ -80,7 +80,7 @@ def method_label(ff: ForceFieldVariant, method: Level, rerank: Level | None, sol
 
 
 def _progress(iterable, total, desc, enabled):
-    from tqdm.auto import tqdm
+    from tqdm import tqdm
 
     return tqdm(iterable, total=total, desc=desc, unit="conf", disable=not enabled, leave=False)
 
@@ -115,53 +115,42 @@ def rerank_structures(
     rejected: list[MinimisedStructure] = []
     n_xtb_opt = 0
     if method is Level.GFN2 or rerank is Level.GFN2:
-        from forcefields.xtb import XTBModel
-
         e0 = min(s.energy for s in structures)
         candidates = [s for s in structures if s.energy - e0 <= window + REOPTIMISE_MARGIN_KJ]
-        xtb = XTBModel(mol, solvent=solvent, solvation_model=solvation_model, threads=threads, label=label)
+        runner = _XTBRunner(mol, solvent, solvation_model, label, threads)
         xtb_name = _xtb_name(solvent, solvation_model)
         if method is Level.GFN2:
             reopt: list[MinimisedStructure] = []
-            for s in _progress(candidates, len(candidates), "GFN2-xTB optimisation", progress):
-                res = xtb.optimize(s.coords)
+            results = runner.map("optimize", [s.coords for s in candidates], "GFN2-xTB optimisation", progress)
+            for s, res in zip(candidates, results):
                 n_xtb_opt += 1
+                coords, energy, rms, converged, msg = res
                 status, message = Status.OK, ""
-                if not res.converged:
-                    status, message = Status.NOT_CONVERGED, f"GFN2-xTB optimisation: {res.message}"
-                elif stereo_signature(mol, res.coords) != reference_signature:
+                if not converged:
+                    status, message = Status.NOT_CONVERGED, f"GFN2-xTB optimisation: {msg}"
+                elif stereo_signature(mol, coords) != reference_signature:
                     status, message = Status.STEREO_CHANGED, "stereochemistry changed during GFN2-xTB optimisation"
                 new = replace(
-                    s,
-                    coords=np.asarray(res.coords, dtype=float),
-                    energy=float(res.energy),
-                    rms_gradient=float(res.rms_gradient),
-                    converged=bool(res.converged),
-                    status=status,
-                    message=message,
+                    s, coords=coords, energy=energy, rms_gradient=rms, converged=converged, status=status, message=message
                 )
-                if status is Status.OK:
-                    reopt.append(new)
-                else:
-                    rejected.append(new)
+                (reopt if status is Status.OK else rejected).append(new)
             kept = deduplicate(mol, reopt, achiral)
             ranked = [
                 RankedStructure(structure=k, energies={xtb_name: k.energy}, ranking_energy=k.energy, thermo={"energy": k.energy})
                 for k in kept
             ]
         else:
-            ranked = []
-            for s in _progress(candidates, len(candidates), "GFN2-xTB single points", progress):
-                e = xtb.energy(s.coords)
-                ranked.append(
-                    RankedStructure(
-                        structure=s,
-                        energies={ff_name: s.energy, f"{xtb_name}//{ff_name}": e},
-                        ranking_energy=e,
-                        thermo={"energy": e},
-                    )
+            energies = runner.map("energy", [s.coords for s in candidates], "GFN2-xTB single points", progress)
+            ranked = [
+                RankedStructure(
+                    structure=s,
+                    energies={ff_name: s.energy, f"{xtb_name}//{ff_name}": e},
+                    ranking_energy=e,
+                    thermo={"energy": e},
                 )
-        thermo_model = xtb if method is Level.GFN2 else None
+                for s, e in zip(candidates, energies)
+            ]
+        thermo_model = runner if method is Level.GFN2 else None
     else:
         ranked = [
             RankedStructure(structure=s, energies={ff_name: s.energy}, ranking_energy=s.energy, thermo={"energy": s.energy})
@@ -182,12 +171,15 @@ def _with_free_energies(mol, ranked, model, temperature, progress) -> list[Ranke
     from chairbuild.thermo import atomic_masses, harmonic_frequencies, qrrho_thermo, rotational_symmetry_number
 
     masses = atomic_masses(mol)
+    coords_list = [r.structure.coords for r in ranked]
+    if isinstance(model, _XTBRunner):
+        hessians = model.map("hessian", coords_list, "Hessians (GFN2-xTB)", progress)
+    else:
+        hessians = [model.hessian(c) for c in _progress(coords_list, len(coords_list), f"Hessians ({model.name})", progress)]
     out = []
     probe = Chem.Mol(mol)
-    probe.RemoveAllConformers()
-    for r in _progress(ranked, len(ranked), f"Hessians ({model.name})", progress):
+    for r, hess in zip(ranked, hessians):
         coords = r.structure.coords
-        hess = model.hessian(coords)
         freqs = harmonic_frequencies(hess, masses, coords)
         conf = Chem.Conformer(mol.GetNumAtoms())
         for i, p in enumerate(coords):
@@ -208,3 +200,73 @@ def _with_free_energies(mol, ranked, model, temperature, progress) -> list[Ranke
         }
         out.append(replace(r, ranking_energy=e + th.gibbs_correction, thermo=thermo))
     return out
+
+
+# --------------------------------------------------------------- GFN2-xTB runner
+_WORKER: dict = {}
+
+
+def _worker_init(mol_block: str, solvent, solvation_model: str, label: str) -> None:
+    from forcefields.xtb import XTBModel
+
+    mol = Chem.MolFromMolBlock(mol_block, removeHs=False)
+    _WORKER["model"] = XTBModel(mol, solvent=solvent, solvation_model=solvation_model, threads=1, label=label)
+
+
+def _run_task(model, kind: str, coords: np.ndarray):
+    if kind == "optimize":
+        res = model.optimize(coords)
+        return (np.asarray(res.coords, dtype=float), float(res.energy), float(res.rms_gradient), bool(res.converged), res.message)
+    if kind == "energy":
+        return float(model.energy(coords))
+    if kind == "hessian":
+        return model.hessian(coords)
+    raise ValueError(kind)
+
+
+def _worker_task(kind: str, coords: np.ndarray):
+    return _run_task(_WORKER["model"], kind, coords)
+
+
+class _XTBRunner:
+    """Run GFN2-xTB tasks over conformers, in worker processes when it pays.
+
+    With more than one worker (``threads`` workers, default the number of CPUs) and at
+    least ``PARALLEL_MIN_TASKS`` tasks, conformers are spread over a pool of forked
+    processes (each runs tblite with one OpenMP thread, which measured faster than
+    several threads on one small molecule); otherwise, or where ``fork`` is not
+    available, they run in this process.
+    """
+
+    PARALLEL_MIN_TASKS = 4
+
+    def __init__(self, mol: Chem.Mol, solvent, solvation_model: str, label: str, threads: int | None):
+        import os
+
+        from forcefields.xtb import XTBModel
+
+        self.mol_block = Chem.MolToMolBlock(mol)
+        self.args = (self.mol_block, solvent, solvation_model, label)
+        self.workers = threads if threads is not None else (os.cpu_count() or 1)
+        self.local = XTBModel(mol, solvent=solvent, solvation_model=solvation_model, threads=1, label=label)
+        self.name = self.local.name
+
+    def map(self, kind: str, coords_list: list[np.ndarray], desc: str, progress: bool) -> list:
+        if self.workers <= 1 or len(coords_list) < self.PARALLEL_MIN_TASKS:
+            return [_run_task(self.local, kind, c) for c in _progress(coords_list, len(coords_list), desc, progress)]
+        import multiprocessing
+        from concurrent.futures import ProcessPoolExecutor
+
+        if "fork" not in multiprocessing.get_all_start_methods():
+            return [_run_task(self.local, kind, c) for c in _progress(coords_list, len(coords_list), desc, progress)]
+        # fork: no re-import of the caller's script; the workers use tblite with one OpenMP
+        # thread, so libgomp's thread pool (not fork-safe) is never needed in them
+        ctx = multiprocessing.get_context("fork")
+        with ProcessPoolExecutor(
+            max_workers=min(self.workers, len(coords_list)), mp_context=ctx, initializer=_worker_init, initargs=self.args
+        ) as pool:
+            futures = [pool.submit(_worker_task, kind, c) for c in coords_list]
+            results = []
+            for fut in _progress(futures, len(futures), desc, progress):
+                results.append(fut.result())
+        return results

@@ -1,0 +1,159 @@
+"""Tests of chairbuild.report and chairbuild.assets.
+
+Checks are internal-consistency checks (common practice, no source): the report must be
+one file that loads nothing from the network when the 3Dmol.js asset is present, must
+carry the table, the SDF and the caveat, and must say so plainly when it falls back to
+the CDN. The JavaScript twin of ``viewer.compose`` is run with Node.js when available.
+"""
+
+from __future__ import annotations
+
+import html
+import json
+import re
+import shutil
+import subprocess
+from pathlib import Path
+
+import pytest
+
+import chairbuild.assets as assets
+from chairbuild.errors import InputError, OptionError
+from chairbuild.report import NETWORK_NOTICE, _JS, caveat_text, check_report_path, report_html, write_report
+
+TBU_METHYL = "CC(C)(C)[C@H]1CC[C@@H](C)CC1"
+METHYLDECALIN = "C[C@H]1CC[C@H]2CCCC[C@@H]2C1"
+FAKE_JS = "/* stand-in for the 3Dmol.js build */ var $3Dmol = undefined;"
+
+
+@pytest.fixture(scope="module")
+def locked():
+    from chairbuild.pipeline import analyze
+
+    return analyze(TBU_METHYL, name="tBu-locked <methyl> cyclohexane")
+
+
+@pytest.fixture(scope="module")
+def fused():
+    from chairbuild.pipeline import analyze
+
+    return analyze(METHYLDECALIN, name="2-methyldecalin")
+
+
+@pytest.fixture
+def fake_asset(tmp_path, monkeypatch):
+    folder = tmp_path / "assets"
+    folder.mkdir()
+    (folder / assets.JS_NAME).write_text(FAKE_JS, encoding="utf-8")
+    (folder / "3Dmol-version.json").write_text(json.dumps({"version": assets.THREEDMOL_VERSION}), encoding="utf-8")
+    monkeypatch.setattr(assets, "ASSET_DIR", folder)
+    return folder
+
+
+@pytest.fixture
+def no_asset(tmp_path, monkeypatch):
+    monkeypatch.setattr(assets, "ASSET_DIR", tmp_path / "missing")
+
+
+def _data_block(text: str, idx: int) -> dict:
+    m = re.search(rf'<script type="application/json" id="cb-data-{idx}">(.*?)</script>', text, re.S)
+    assert m is not None
+    return json.loads(m.group(1))
+
+
+def test_report_is_self_contained_with_the_asset(locked, fake_asset):
+    path = write_report(locked, "report.html")
+    text = Path(path).read_text(encoding="utf-8")
+    assert FAKE_JS in text
+    assert not re.search(r"""<script[^>]*\bsrc\s*=\s*["']?https?:""", text, re.I)
+    assert not re.search(r"""<(link|img|iframe)[^>]*\b(src|href)\s*=\s*["']?https?:""", text, re.I)
+    assert NETWORK_NOTICE not in text
+    assert assets.cdn_url() not in text
+
+
+def test_report_contains_table_sdf_caveat_and_families(locked, fake_asset):
+    from chairbuild.output import format_table, sdf_text
+    from chairbuild.viewer import aligned_ensemble
+
+    text = report_html(locked)
+    assert html.escape(format_table(locked)) in text
+    assert html.escape(caveat_text([locked])) in text
+    assert "model estimates" in text.lower() and "higher-level calculation" in text
+    data = _data_block(text, 0)
+    assert data["sdf"] == sdf_text(aligned_ensemble(locked))
+    assert data["sdf"].count("$$$$") == len(locked.conformers) == data["n"]
+    assert len(data["layers"]["single"]) == len(data["layers"]["overlay"]) == len(locked.conformers)
+    flagged = [f for f in locked.families if f.disagreement]
+    assert text.count('<span class="flag">disagrees</span>') == len(flagged)
+    for fam in locked.families:
+        for term in fam.additive_terms:
+            assert html.escape(term.source) in text
+    assert text.count("data:image/png;base64,") == 3
+    assert "&lt;methyl&gt;" in text and "<methyl>" not in text  # names are escaped
+
+
+def test_missing_asset_falls_back_to_the_pinned_cdn_and_says_so(locked, no_asset):
+    assert assets.js_path() is None
+    text = report_html(locked)
+    assert NETWORK_NOTICE in text
+    assert "python -m chairbuild.assets fetch" in text
+    srcs = re.findall(r"""<script[^>]*\bsrc\s*=\s*["']([^"']+)""", text)
+    assert srcs == [assets.cdn_url()]
+    assert f"3dmol@{assets.THREEDMOL_VERSION}/" in srcs[0]
+
+
+def test_stale_asset_version_counts_as_missing(fake_asset):
+    (fake_asset / "3Dmol-version.json").write_text(json.dumps({"version": "0.0.1"}), encoding="utf-8")
+    assert assets.js_path() is None
+    assert assets.read_js() is None
+
+
+def test_several_ensembles_in_one_file(locked, fused, fake_asset):
+    path = write_report([locked, fused], Path("out") / "both.html", title="two scaffolds")
+    text = path.read_text(encoding="utf-8")
+    assert text.count("<section id=") == 2
+    assert _data_block(text, 1)["n"] == len(fused.conformers)
+    assert "<title>two scaffolds</title>" in text
+    assert text.count('<div class="caveat">') == 3
+
+
+def test_bad_arguments_raise_typed_errors(locked):
+    with pytest.raises(OptionError):
+        write_report(locked, "report.txt")
+    with pytest.raises(OptionError):
+        check_report_path("report.json")
+    Path("a_folder.html").mkdir()
+    with pytest.raises(OptionError):
+        check_report_path("a_folder.html")
+    assert check_report_path("out/x.HTML") == Path("out/x.HTML")
+    with pytest.raises(InputError):
+        write_report([], "report.html")
+    with pytest.raises(InputError):
+        write_report(["not an ensemble"], "report.html")
+    assert not Path("report.html").exists()
+
+
+@pytest.mark.skipif(shutil.which("node") is None, reason="Node.js not installed")
+def test_javascript_compose_matches_python(fused):
+    from chairbuild.viewer import HydrogenMode, compose, compose_config, scene_layers
+
+    layers = scene_layers(fused, 1)
+    cfg = compose_config()
+    cases = [(m.value, t) for m in HydrogenMode for t in (False, True)]
+    script = _JS + "\nconst L = " + json.dumps(layers) + ";\nconst cfg = " + json.dumps(cfg) + ";\n"
+    script += "const cases = " + json.dumps(cases) + ";\n"
+    script += "console.log(JSON.stringify(cases.map(c => cbCompose(L, c[0], c[1], 460, cfg, false))));\n"
+    Path("compose.js").write_text(script, encoding="utf-8")
+    out = subprocess.run(["node", "compose.js"], capture_output=True, text=True, check=True, timeout=60)
+    got = json.loads(out.stdout)
+    want = [json.loads(json.dumps(compose(layers, m, t, legend=True, height=460))) for m, t in cases]
+    assert got == want
+
+
+def test_assets_fetch_without_npm_raises(tmp_path, monkeypatch):
+    from chairbuild.errors import ChairbuildError
+
+    monkeypatch.setattr(assets, "ASSET_DIR", tmp_path / "a")
+    with pytest.raises(ChairbuildError, match="npm not found"):
+        assets.fetch(npm="npm-that-does-not-exist-here")
+    assert assets.main(["status"]) == 1
