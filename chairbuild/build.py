@@ -65,6 +65,8 @@ _INFEASIBLE_DEG = 40.0
 _HALF_TETRAHEDRAL = np.radians(54.75)
 DEFAULT_MAX_ROTAMERS = 81
 _TEMPLATE_SEED = 20261202
+#: Starting guesses tried per ring-state combination before it is declared unreachable.
+_MAX_GUESSES = 4
 
 
 @dataclass(frozen=True)
@@ -315,7 +317,7 @@ class _CoreProblem:
         """Ideal coordinates of the system's atoms for ``states``, or None if unreachable."""
         targets = self.torsion_targets(states)
         best, best_dev = None, np.inf
-        for guess in guesses:
+        for guess in guesses[:_MAX_GUESSES]:
             fit = least_squares(
                 self.residuals, guess.ravel(), jac=self.jacobian, args=(targets,), method="lm", xtol=1e-6, max_nfev=400
             )
@@ -581,23 +583,37 @@ def _core_guesses(problem: _CoreProblem, states: Sequence[RingState], template: 
     return guesses
 
 
-def _system_cores(mol, analysis, template, problems, combo_per_system, ranks):
-    """For each ring system, the list of full core dicts (ring atoms + exocyclic atoms)."""
-    per_system = {}
-    for s_idx, states in combo_per_system.items():
-        coords = problems[s_idx].solve(states, _core_guesses(problems[s_idx], states, template))
+def _core_options(mol, core_xyz: dict[int, np.ndarray], atoms: list[int], ranks) -> list[dict[int, np.ndarray]]:
+    """Every distinct core (system atoms plus exocyclic neighbours) for one ring-system geometry."""
+    options = _placements(mol, core_xyz, set(atoms), ranks)
+    cores = []
+    for choice in itertools.product(*options):
+        full = dict(core_xyz)
+        for part in choice:
+            full.update(part)
+        cores.append(full)
+    return cores
+
+
+def _system_states(mol, problem: "_CoreProblem", combos, template, ranks):
+    """Feasible (label, states, cores) of one ring system, and the number of infeasible combinations.
+
+    When no combination of chair and twist-boat states fits (a bridged system such as
+    bicyclo[2.2.2]octane, whose rings are boats), the system is built once from the
+    template embedding instead, labelled ``embedded``.
+    """
+    feasible = []
+    for states in combos:
+        coords = problem.solve(states, _core_guesses(problem, states, template))
         if coords is None:
-            return None
-        core_xyz = {a: coords[problems[s_idx].local[a]] for a in problems[s_idx].atoms}
-        options = _placements(mol, core_xyz, set(problems[s_idx].atoms), ranks)
-        cores = []
-        for choice in itertools.product(*options):
-            full = dict(core_xyz)
-            for part in choice:
-                full.update(part)
-            cores.append(full)
-        per_system[s_idx] = cores
-    return per_system
+            continue
+        core_xyz = {a: coords[problem.local[a]] for a in problem.atoms}
+        feasible.append((states, _core_options(mol, core_xyz, problem.atoms, ranks)))
+    n_infeasible = len(combos) - len(feasible)
+    if not feasible:
+        core_xyz = {a: template[a] - template[problem.atoms].mean(axis=0) for a in problem.atoms}
+        feasible.append((None, _core_options(mol, core_xyz, problem.atoms, ranks)))
+    return feasible, n_infeasible
 
 
 def _set_rotamer(conf: Chem.Conformer, rotor_atoms, angle: float) -> None:
@@ -667,30 +683,38 @@ def build_starting_structures(
     assembler = _Assembler(mol, {k: p.atoms for k, p in problems.items()}, template)
     dedupe = StructureDeduplicator(mol, None, achiral=achiral, rmsd_threshold=0.05)
     starts: list[StartingStructure] = []
-    n_infeasible = n_stereo = n_dup = n_total = 0
+    n_infeasible = n_stereo = n_dup = 0
     infeasible_labels = []
     system_ids = [s.index for s in analysis.systems]
     conf_mol = Chem.Mol(mol)
     conf_mol.RemoveAllConformers()
     conf = Chem.Conformer(mol.GetNumAtoms())
     conf_mol.AddConformer(conf, assignId=True)
-    for combo in itertools.product(*(combos_per_system[s] for s in system_ids)):
-        n_total += 1
-        combo_map = dict(zip(system_ids, combo))
-        label = ";".join(
-            f"ring{analysis.systems[s].rings[k]}={st.label}" for s, states in combo_map.items() for k, st in enumerate(states)
-        )
-        cores = _system_cores(mol, analysis, template, problems, combo_map, ranks)
-        if cores is None:
-            n_infeasible += 1
-            infeasible_labels.append(label)
-            continue
-        for choice_idx, core_choice in enumerate(itertools.product(*(cores[s] for s in system_ids))):
+    per_system = {}
+    for s in system_ids:
+        per_system[s], n_bad = _system_states(mol, problems[s], combos_per_system[s], template, ranks)
+        n_infeasible += n_bad
+        if per_system[s][0][0] is None:
+            notes.append(
+                f"ring system {s} (rings {', '.join(map(str, analysis.systems[s].rings))}) fits no chair/twist-boat "
+                "combination (bridged); it was built from its embedded geometry only"
+            )
+        elif n_bad:
+            infeasible_labels.append(n_bad)
+    for combo in itertools.product(*(per_system[s] for s in system_ids)):
+        parts = []
+        for s, (states, _) in zip(system_ids, combo):
+            if states is None:
+                parts.append(f"system{s}=embedded")
+            else:
+                parts += [f"ring{analysis.systems[s].rings[k]}={st.label}" for k, st in enumerate(states)]
+        label = ";".join(parts)
+        all_chairs = all(states is None or all(st.kind == "chair" for st in states) for states, _ in combo)
+        for choice_idx, core_choice in enumerate(itertools.product(*(cores for _, cores in combo))):
             xyz = assembler.assemble(dict(zip(system_ids, core_choice)))
             if stereo_signature(mol, xyz) != reference_signature:
                 n_stereo += 1
                 continue
-            all_chairs = all(st.kind == "chair" for states in combo_map.values() for st in states)
             for rot_values in rotamer_sets if all_chairs else boat_sets:
                 c = conf_mol.GetConformer()
                 for i, p in enumerate(xyz):
@@ -707,12 +731,13 @@ def build_starting_structures(
                 starts.append(StartingStructure(coords=final, origin=origin))
     if infeasible_labels:
         notes.append(
-            f"{len(infeasible_labels)} ring-state combination(s) cannot be reached with this ring fusion and were dropped"
+            f"{sum(infeasible_labels)} ring-state combination(s) cannot be built (the ring fusion, a bridge or an "
+            "endocyclic double bond forbids them) and were dropped"
         )
     return BuildReport(
         starts=tuple(starts),
         notes=tuple(notes),
-        n_ring_combinations=n_total,
+        n_ring_combinations=int(np.prod([len(combos_per_system[s]) for s in system_ids])),
         n_infeasible=n_infeasible,
         n_stereo_rejected=n_stereo,
         n_duplicates=n_dup,

@@ -104,6 +104,7 @@ def build_families(
             additive_energy = model_energy = None
             terms: tuple[AdditiveTerm, ...] = ()
             flag = False
+            notes: tuple[str, ...] = ()
             label = _label(key, symbols, groups)
             if key in add_totals and ref_key is not None:
                 terms = tuple(add_terms[key][0])
@@ -111,9 +112,7 @@ def build_families(
                 p_add_ref = pops[ref_key]
                 model_energy = -rt * np.log(p / p_add_ref) + 0.0 if p > 0 else np.inf
                 flag = bool(abs(model_energy - additive_energy) > DISAGREEMENT_KJ)
-                unscored = add_terms[key][1]
-                if unscored:
-                    label += " [additive estimate partial: " + "; ".join(unscored) + "]"
+                notes = tuple(add_terms[key][1])
             out.append(
                 FamilyRecord(
                     key=key,
@@ -127,6 +126,7 @@ def build_families(
                     additive_terms=terms,
                     model_energy=None if model_energy is None else float(model_energy),
                     disagreement=flag,
+                    additive_notes=notes,
                 )
             )
     return tuple(out)

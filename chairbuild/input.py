@@ -186,7 +186,10 @@ def read_molecules(
             if smi in classes or mirror in classes:
                 continue
             classes[smi] = iso
-        if len(classes) == 1:
+        only = next(iter(classes))
+        if len(classes) == 1 and not any(mark in only for mark in ("@", "/", "\\")):
+            candidates = list(classes.values())  # the flagged centres are not stereogenic after all
+        elif len(classes) == 1:
             candidates = list(classes.values())
             notes.append(
                 f"stereochemistry undefined at {', '.join(unassigned)} only decides between mirror images; "

@@ -216,14 +216,18 @@ def format_table(ens: Ensemble, unit: EnergyUnit = EnergyUnit.KJ, max_rows: int 
             continue
         lines += ["", f"ring {r} (atoms {'-'.join(map(str, ens.ring_atoms[r]))}): families"]
         lines.append(f"  {'pop %':>7} {'dG':>7} {'K':>9} {'additive':>9} {'model':>7}  family")
+        partial_notes: list[str] = []
         for f in fams:
-            add = "" if f.additive_energy is None else f"{unit.from_kj(f.additive_energy):9.2f}"
+            add = "" if f.additive_energy is None else f"{unit.from_kj(f.additive_energy):8.2f}" + ("*" if f.additive_notes else " ")
+            partial_notes += [n for n in f.additive_notes if n not in partial_notes]
             model = "" if f.model_energy is None else f"{unit.from_kj(f.model_energy):7.2f}"
             kval = f"{f.equilibrium_constant:9.2f}" if f.equilibrium_constant < 1e6 else f"{'>1e6':>9}"
             flag = "  << additive estimate disagrees" if f.disagreement else ""
             lines.append(
                 f"  {100 * f.population:7.2f} {unit.from_kj(f.delta_g):7.2f} {kval} {add:>9} {model:>7}  {f.label}{flag}"
             )
+        if partial_notes:
+            lines.append("  * additive estimate partial: " + "; ".join(n.split(": ", 1)[-1] for n in partial_notes))
     if ens.notes:
         lines += ["", "notes:"] + [f"  - {n}" for n in ens.notes]
     if ens.rejected:

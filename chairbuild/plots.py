@@ -189,7 +189,6 @@ def family_temperature_figure(result: Ensemble, t_min: float = 150.0, t_max: flo
 
 
 def _short_label(text: str, width: int = 60) -> str:
-    text = text.split(" [additive estimate partial", 1)[0]
     return text if len(text) <= width else text[: width - 1] + "…"
 
 

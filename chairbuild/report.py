@@ -159,10 +159,9 @@ def _chip(text: str, colour: str) -> str:
     return f'<span class="chip" style="background:{_e(colour)};color:{font}">{_e(text)}</span>'
 
 
-def _family_label(label: str) -> tuple[str, str]:
+def _family_label(family) -> tuple[str, str]:
     """(label, note on a partial additive estimate or '')."""
-    head, sep, rest = label.partition(" [additive estimate partial: ")
-    return head, (rest.rstrip("]") if sep else "")
+    return family.label, "; ".join(family.additive_notes)
 
 
 def _num(value: float | None, fmt: str = ".2f") -> str:
@@ -188,7 +187,7 @@ def _summary_rows(ensembles: Sequence[Ensemble]) -> str:
             fams = [f for f in ens.families if f.ring_index == r]
             if fams:
                 f = max(fams, key=lambda f: f.population)
-                top.append(f"ring {r}: {_e(_family_label(f.label)[0])} ({100 * f.population:.1f} %)")
+                top.append(f"ring {r}: {_e(_family_label(f)[0])} ({100 * f.population:.1f} %)")
         rows.append(
             f'<tr><td><a href="#cb-ens-{i}">{_e(ens.name)}</a></td><td><code>{_e(ens.smiles)}</code></td>'
             f'<td class="num">{len(ens.conformers)}</td>'
@@ -257,7 +256,7 @@ def _family_tables(ens: Ensemble) -> str:
                 )
             kval = f.equilibrium_constant
             kcell = _num(kval) if np.isfinite(kval) and kval < 1e6 else '<td class="num">&gt;1e6</td>'
-            name, partial = _family_label(f.label)
+            name, partial = _family_label(f)
             if partial:
                 breakdown += f"<small>additive estimate partial: {_e(partial)}</small>"
             rows.append(

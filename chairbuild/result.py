@@ -324,6 +324,8 @@ class FamilyRecord:
         the ring's lowest family.
     disagreement : bool
         True when additive and model energies differ by more than the ensemble's threshold.
+    additive_notes : tuple of str
+        What the additive estimate could not score (it is then partial), one reason each.
     """
 
     key: str
@@ -337,6 +339,7 @@ class FamilyRecord:
     additive_terms: tuple[AdditiveTerm, ...] = ()
     model_energy: float | None = None
     disagreement: bool = False
+    additive_notes: tuple[str, ...] = ()
 
     def to_dict(self, unit: EnergyUnit) -> dict[str, Any]:
         def conv(v: float | None) -> float | None:
@@ -354,6 +357,8 @@ class FamilyRecord:
             "additive_terms": [t.to_dict(unit) for t in self.additive_terms],
             "model_energy": conv(self.model_energy),
             "disagreement": self.disagreement,
+            "additive_partial": bool(self.additive_notes),
+            "additive_notes": list(self.additive_notes),
         }
 
 

@@ -160,7 +160,7 @@ def _ring_systems(rings: list[tuple[int, ...]]) -> list[list[int]]:
 def _group_smiles(mol: Chem.Mol, ring_atom: int, atom: int) -> str:
     """Rooted SMILES of the branch that starts at ``atom`` and does not go back to ``ring_atom``."""
     if mol.GetAtomWithIdx(atom).GetAtomicNum() == 1:
-        return "[H]"
+        return "H"
     seen = {ring_atom, atom}
     stack = [atom]
     while stack:

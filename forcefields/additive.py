@@ -516,7 +516,7 @@ class AdditiveModel(EnergyModel):
         """Rooted SMILES of the branch at ``atom`` (element symbol for ring bonds)."""
         first = self._mol.GetAtomWithIdx(atom)
         if first.GetAtomicNum() == 1:
-            return "[H]"
+            return "H"
         bond = self._mol.GetBondBetweenAtoms(ring_atom, atom)
         if bond.IsInRing():
             return first.GetSymbol()

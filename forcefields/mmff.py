@@ -26,8 +26,8 @@ cost and the stiffness of bonded terms:
 
 Convergence criterion: a conformer is converged when the root-mean-square of all
 ``3 * n_atoms`` Cartesian gradient components of the minimised function falls below
-``tolerance`` (kJ mol^-1 Å^-1; default :data:`DEFAULT_TOLERANCE` = 0.04, about
-0.01 kcal mol^-1 Å^-1).
+``tolerance`` (kJ mol^-1 Å^-1; default :data:`DEFAULT_TOLERANCE` = 0.01, about
+0.0024 kcal mol^-1 Å^-1; tightening it costs few evaluations near a minimum).
 """
 
 from __future__ import annotations
@@ -36,7 +36,7 @@ import contextlib
 import ctypes
 import math
 import time
-from collections.abc import Iterator, Sequence
+from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
@@ -69,7 +69,7 @@ __all__ = [
 ]
 
 #: Default convergence threshold: RMS Cartesian gradient, kJ mol^-1 Å^-1.
-DEFAULT_TOLERANCE = 0.04
+DEFAULT_TOLERANCE = 0.01
 #: Default iteration limit per conformer.
 DEFAULT_MAX_ITERATIONS = 2000
 #: Default dihedral-restraint force constant k in E = k * dphi^2, kJ mol^-1 rad^-2.
@@ -182,8 +182,8 @@ def _make_context(system: openmm.System, threads: int | None) -> openmm.Context:
 
 
 # --------------------------------------------------------------------------------------
-# BLAS threads: the minimiser's small dense factorisations are far slower with several
-# BLAS threads on a busy machine, so they run with the model's thread count.
+# BLAS threads: the minimiser's small dense factorisations and products are far slower
+# with several BLAS threads on a busy machine, so the minimiser runs them single-threaded.
 # --------------------------------------------------------------------------------------
 
 _BLAS_HANDLES: list[tuple[object, object]] | None = None
@@ -240,6 +240,8 @@ class _SlotMinimizer:
 
     ``evaluate(slots, coords)`` must return the gradient (kJ mol^-1 Å^-1) of the
     minimised function for the given slots at ``coords`` (shape ``(k, 3 * n_atoms)``, Å).
+    The L-BFGS memory is one ring buffer shared by all slots (a slot that did not step
+    in a round stores an empty pair), so every operation is a contiguous array op.
     """
 
     def __init__(
@@ -258,9 +260,12 @@ class _SlotMinimizer:
         self.trial = np.zeros((n_slots, n3))
         self.gd = np.zeros(n_slots)
         self.alpha = np.zeros(n_slots)
-        self.mem_s = np.zeros((n_slots, _MEMORY, n3))
-        self.mem_y = np.zeros((n_slots, _MEMORY, n3))
-        self.rho = np.zeros((n_slots, _MEMORY))
+        self.mem_s = np.zeros((_MEMORY, n_slots, n3))
+        self.mem_y = np.zeros((_MEMORY, n_slots, n3))
+        self.rho = np.zeros((_MEMORY, n_slots))
+        self.head = 0
+        self.last_y = np.zeros((n_slots, n3))
+        self.last_sy = np.zeros(n_slots)
         self.pinv = np.zeros((n_slots, n3, n3))
         self.xref = np.zeros((n_slots, n3))
         self.iters = np.zeros(n_slots, dtype=int)
@@ -268,7 +273,10 @@ class _SlotMinimizer:
         self.backtracks = np.zeros(n_slots, dtype=int)
         self.steepest = np.zeros(n_slots, dtype=bool)
 
-    # -- bookkeeping ------------------------------------------------------------------
+    def _forget(self, slots: np.ndarray) -> None:
+        self.rho[:, slots] = 0.0
+        self.last_sy[slots] = 0.0
+
     def _load(self, slot: int) -> None:
         try:
             conf = next(self._queue)
@@ -278,12 +286,12 @@ class _SlotMinimizer:
         self.conf[slot] = conf
         self.phase[slot] = _START
         self.x[slot] = self.trial[slot] = self._starts[conf]
-        self.rho[slot] = 0.0
+        self._forget(np.array([slot]))
         self.iters[slot] = self.evals[slot] = self.backtracks[slot] = 0
         self.steepest[slot] = False
 
-    def _finish(self, slots: np.ndarray, converged: np.ndarray) -> None:
-        for slot, ok in zip(slots.tolist(), np.broadcast_to(converged, slots.shape).tolist()):
+    def _finish(self, slots: list[int], converged: list[bool]) -> None:
+        for slot, ok in zip(slots, converged):
             rms = float(np.sqrt(np.mean(self.g[slot] ** 2)))
             self._results[self.conf[slot]] = (
                 self.x[slot].copy(), rms, bool(ok), int(self.iters[slot]), int(self.evals[slot])
@@ -295,33 +303,35 @@ class _SlotMinimizer:
             self.pinv[slots] = self.precond.inverses(self.x[slots].reshape(len(slots), -1, 3))
             self.xref[slots] = self.x[slots]
 
-    def _directions(self, slots: np.ndarray) -> None:
-        """Two-loop recursion with H0 = gamma * P^-1; sets d, gd, alpha and the trial point."""
+    def _directions(self, need: np.ndarray) -> None:
+        """Two-loop recursion with H0 = gamma * P^-1 for the slots in ``need``.
+
+        The loops run on all slots at once (contiguous arrays); only the rows of
+        ``need`` are kept. Sets d, gd, alpha and the trial point.
+        """
+        slots = np.flatnonzero(need)
         if not len(slots):
             return
-        q = self.g[slots].copy()
-        mem_s, mem_y, rho = self.mem_s[slots], self.mem_y[slots], self.rho[slots]
-        a = np.zeros((len(slots), _MEMORY))
-        for i in range(_MEMORY - 1, -1, -1):
-            a[:, i] = rho[:, i] * np.einsum("kn,kn->k", mem_s[:, i], q)
-            q -= a[:, i, None] * mem_y[:, i]
-        y_new = mem_y[:, -1]
-        z, py = np.empty_like(q), np.empty_like(q)
-        for row, slot in enumerate(slots.tolist()):  # P^-1 q and P^-1 y, no copy of P^-1
-            z[row], py[row] = np.stack([q[row], y_new[row]]) @ self.pinv[slot]  # P symmetric
-        ypy = np.einsum("kn,kn->k", y_new, py)
-        have = (rho[:, -1] > 0.0) & (ypy > 0.0)
-        gamma = np.where(have, 1.0 / np.where(have, rho[:, -1] * ypy, 1.0), 1.0)
-        z *= gamma[:, None]
-        for i in range(_MEMORY):
-            b = rho[:, i] * np.einsum("kn,kn->k", mem_y[:, i], z)
-            z += (a[:, i] - b)[:, None] * mem_s[:, i]
-        d = -z
+        order = [(self.head - 1 - j) % _MEMORY for j in range(_MEMORY)]  # newest first
+        q = self.g.copy()
+        a = np.zeros((_MEMORY, self.n_slots))
+        for i in order:
+            a[i] = self.rho[i] * np.einsum("kn,kn->k", self.mem_s[i], q)
+            q -= a[i, :, None] * self.mem_y[i]
+        both = np.matmul(self.pinv, np.stack([q, self.last_y], axis=2))  # P^-1 q, P^-1 y_last
+        z, py = both[:, :, 0], both[:, :, 1]
+        ypy = np.einsum("kn,kn->k", self.last_y, py)
+        have = (self.last_sy > 0.0) & (ypy > 0.0)
+        z *= np.where(have, self.last_sy / np.where(have, ypy, 1.0), 1.0)[:, None]
+        for i in reversed(order):
+            b = self.rho[i] * np.einsum("kn,kn->k", self.mem_y[i], z)
+            z += (a[i] - b)[:, None] * self.mem_s[i]
+        d = -z[slots]
         gd = np.einsum("kn,kn->k", self.g[slots], d)
-        bad = ~(gd < 0.0) | ~np.isfinite(gd)
+        bad = ~(gd < 0.0)
         if bad.any():  # not a descent direction: forget the memory, use -P^-1 g
             worst = slots[bad]
-            self.rho[worst] = 0.0
+            self._forget(worst)
             d[bad] = [-(self.pinv[w] @ self.g[w]) for w in worst.tolist()]
             gd[bad] = np.einsum("kn,kn->k", self.g[worst], d[bad])
         step = np.sqrt((d.reshape(len(slots), -1, 3) ** 2).sum(axis=2)).max(axis=1)
@@ -330,8 +340,9 @@ class _SlotMinimizer:
         self.trial[slots] = self.x[slots] + self.alpha[slots, None] * d
         self.phase[slots] = _TRIAL
 
-    # -- driver -----------------------------------------------------------------------
-    def run(self, starts: np.ndarray, evaluate) -> list[tuple]:
+    def run(
+        self, starts: np.ndarray, evaluate: Callable[[np.ndarray, np.ndarray], np.ndarray]
+    ) -> list[tuple]:
         """Minimise every row of ``starts`` (shape ``(n_conf, 3 * n_atoms)``)."""
         self._starts = starts
         self._queue = iter(range(len(starts)))
@@ -339,87 +350,90 @@ class _SlotMinimizer:
         for slot in range(self.n_slots):
             self._load(slot)
         tol2 = self.tolerance**2
-        while True:
-            active = np.flatnonzero(self.phase != _IDLE)
-            if not len(active):
-                break
-            grad = evaluate(active, self.trial[active])
-            self.evals[active] += 1
-            phase = self.phase[active]
+        with np.errstate(all="ignore"):  # idle rows may hold stale numbers
+            while True:
+                active = np.flatnonzero(self.phase != _IDLE)
+                if not len(active):
+                    break
+                grad = np.full_like(self.g, np.nan)
+                grad[active] = evaluate(active, self.trial[active])
+                self.evals[active] += 1
+                finite = np.isfinite(grad).all(axis=1)
+                need_dir = np.zeros(self.n_slots, dtype=bool)
+                need_ref = np.zeros(self.n_slots, dtype=bool)
+                done: list[int] = []
+                done_ok: list[bool] = []
 
-            # First evaluation of a newly loaded conformer.
-            sel = phase == _START
-            if sel.any():
-                slots, gnew = active[sel], grad[sel]
-                self.g[slots] = gnew
-                finite = np.isfinite(gnew).all(axis=1)
-                done = ~finite | (np.mean(gnew**2, axis=1) <= tol2)
-                self._finish(slots[done], finite[done])
-                go = slots[~done]
-                self._refresh(go)
-                self._directions(go)
+                # First evaluation of a newly loaded conformer.
+                start = self.phase == _START
+                self.g[start] = grad[start]
+                ok_now = start & finite & (np.mean(grad**2, axis=1) <= tol2)
+                fail = start & ~finite
+                for slot in np.flatnonzero(ok_now | fail).tolist():
+                    done.append(slot)
+                    done_ok.append(bool(ok_now[slot]))
+                go = start & ~ok_now & ~fail
+                need_dir |= go
+                need_ref |= go
 
-            # A trial step of a running conformer.
-            sel = phase == _TRIAL
-            if sel.any():
-                slots, gnew = active[sel], grad[sel]
-                finite = np.isfinite(gnew).all(axis=1)
-                gtd = np.einsum("kn,kn->k", np.where(finite[:, None], gnew, 0.0), self.d[slots])
-                alpha, gd = self.alpha[slots], self.gd[slots]
-                ok = finite & (0.5 * alpha * (gd + gtd) <= _ARMIJO * alpha * gd)
-                self._accept(slots[ok], gnew[ok])
-                self._reject(slots[~ok], gtd[~ok], finite[~ok])
+                # A trial step: accept on the trapezoidal Armijo test, else shorten it.
+                trial = self.phase == _TRIAL
+                gtd = np.einsum("kn,kn->k", np.where(finite[:, None], grad, 0.0), self.d)
+                test = 0.5 * self.alpha * (self.gd + gtd) <= _ARMIJO * self.alpha * self.gd
+                accept = trial & finite & test
+                reject = trial & ~accept
+                if accept.any():
+                    s_all = np.where(accept[:, None], self.trial - self.x, 0.0)
+                    y_all = np.where(accept[:, None], grad - self.g, 0.0)
+                    sy = np.einsum("kn,kn->k", s_all, y_all)
+                    ss = np.einsum("kn,kn->k", s_all, s_all)
+                    scale = np.sqrt(ss * np.einsum("kn,kn->k", y_all, y_all))
+                    good = accept & (sy > 1e-12 * scale)
+                    if good.any():
+                        h = self.head
+                        self.mem_s[h], self.mem_y[h] = s_all, y_all
+                        self.rho[h] = np.where(good, 1.0 / np.where(good, sy, 1.0), 0.0)
+                        self.last_y[good], self.last_sy[good] = y_all[good], sy[good]
+                        self.head = (h + 1) % _MEMORY
+                    self.x[accept] = self.trial[accept]
+                    self.g[accept] = grad[accept]
+                    self.iters[accept] += 1
+                    self.backtracks[accept] = 0
+                    self.steepest[accept] = False
+                    converged = accept & (np.mean(grad**2, axis=1) <= tol2)
+                    stop = accept & (converged | (self.iters >= self.max_iterations))
+                    for slot in np.flatnonzero(stop).tolist():
+                        done.append(slot)
+                        done_ok.append(bool(converged[slot]))
+                    go = accept & ~stop
+                    moved = np.sqrt(((self.x - self.xref).reshape(self.n_slots, -1, 3) ** 2).sum(axis=2))
+                    need_ref |= go & (moved.max(axis=1) > _REFRESH_DISPLACEMENT)
+                    need_dir |= go
+                if reject.any():
+                    self.backtracks[reject] += 1
+                    alpha, gd = self.alpha[reject], self.gd[reject]
+                    up = gtd[reject]
+                    rising = finite[reject] & (up > gd)  # derivative root by the secant rule
+                    secant = np.where(rising, alpha * gd / np.where(rising, gd - up, -1.0), 0.5 * alpha)
+                    self.alpha[reject] = np.clip(secant, 0.1 * alpha, 0.5 * alpha)
+                    self.trial[reject] = self.x[reject] + self.alpha[reject, None] * self.d[reject]
+                    stuck = reject & (self.backtracks > _MAX_BACKTRACKS)
+                    for slot in np.flatnonzero(stuck & self.steepest).tolist():
+                        done.append(slot)
+                        done_ok.append(False)
+                    retry = stuck & ~self.steepest  # restart from the preconditioned gradient
+                    self._forget(np.flatnonzero(retry))
+                    self.backtracks[retry] = 0
+                    self.steepest[retry] = True
+                    need_ref |= retry
+                    need_dir |= retry
+
+                for slot in done:
+                    need_dir[slot] = need_ref[slot] = False
+                self._finish(done, done_ok)
+                self._refresh(np.flatnonzero(need_ref))
+                self._directions(need_dir)
         return self._results
-
-    def _accept(self, slots: np.ndarray, gnew: np.ndarray) -> None:
-        if not len(slots):
-            return
-        s = self.trial[slots] - self.x[slots]
-        y = gnew - self.g[slots]
-        sy = np.einsum("kn,kn->k", s, y)
-        good = sy > 1e-12 * np.sqrt(np.einsum("kn,kn->k", s, s) * np.einsum("kn,kn->k", y, y))
-        upd = slots[good]
-        if len(upd):
-            self.mem_s[upd] = np.roll(self.mem_s[upd], -1, axis=1)
-            self.mem_y[upd] = np.roll(self.mem_y[upd], -1, axis=1)
-            self.rho[upd] = np.roll(self.rho[upd], -1, axis=1)
-            self.mem_s[upd, -1] = s[good]
-            self.mem_y[upd, -1] = y[good]
-            self.rho[upd, -1] = 1.0 / sy[good]
-        self.x[slots] = self.trial[slots]
-        self.g[slots] = gnew
-        self.iters[slots] += 1
-        self.backtracks[slots] = 0
-        self.steepest[slots] = False
-        converged = np.mean(gnew**2, axis=1) <= self.tolerance**2
-        done = converged | (self.iters[slots] >= self.max_iterations)
-        self._finish(slots[done], converged[done])
-        go = slots[~done]
-        if not len(go):
-            return
-        moved = np.sqrt(((self.x[go] - self.xref[go]).reshape(len(go), -1, 3) ** 2).sum(axis=2))
-        self._refresh(go[moved.max(axis=1) > _REFRESH_DISPLACEMENT])
-        self._directions(go)
-
-    def _reject(self, slots: np.ndarray, gtd: np.ndarray, finite: np.ndarray) -> None:
-        if not len(slots):
-            return
-        self.backtracks[slots] += 1
-        alpha, gd = self.alpha[slots], self.gd[slots]
-        secant = np.where(finite & (gtd > gd), alpha * gd / np.where(gtd > gd, gd - gtd, -1.0), 0.5 * alpha)
-        self.alpha[slots] = np.clip(secant, 0.1 * alpha, 0.5 * alpha)
-        self.trial[slots] = self.x[slots] + self.alpha[slots, None] * self.d[slots]
-        stuck = self.backtracks[slots] > _MAX_BACKTRACKS
-        if stuck.any():
-            give_up = slots[stuck & self.steepest[slots]]
-            self._finish(give_up, np.zeros(len(give_up), dtype=bool))
-            retry = slots[stuck & ~self.steepest[slots]]
-            if len(retry):  # restart from the preconditioned gradient
-                self.rho[retry] = 0.0
-                self.backtracks[retry] = 0
-                self.steepest[retry] = True
-                self._refresh(retry)
-                self._directions(retry)
 
 
 # --------------------------------------------------------------------------------------
@@ -435,7 +449,9 @@ def _default_slots(n_atoms: int) -> int:
 class _Engine:
     """One OpenMM Context (``n_copies`` copies) and its restraint bookkeeping."""
 
-    def __init__(self, params: MMFFParameters, masses: Sequence[float], n_copies: int, threads: int | None):
+    def __init__(
+        self, params: MMFFParameters, masses: Sequence[float], n_copies: int, threads: int | None
+    ) -> None:
         self.n_copies = n_copies
         self.n_atoms = params.n_atoms
         self.system = _build_system(params, masses, n_copies, with_restraints=True)
@@ -523,6 +539,7 @@ class MMFFModel(EnergyModel):
         self._single = _Engine(self.parameters, self._masses, 1, threads)
         self._replicated: _Engine | None = None
         self._precond = Preconditioner(self.parameters)
+        self._precond_key: tuple = ((), 0.0)
         quads = self.parameters.dihedrals.tolist()
         self._dihedral_slot = {tuple(q): i for i, q in enumerate(quads)}
         self._dihedral_slot.update({tuple(reversed(q)): i for i, q in enumerate(quads)})
@@ -577,6 +594,53 @@ class MMFFModel(EnergyModel):
             for name, group in TERM_GROUPS.items()
         }
 
+    def hessian(self, coords: np.ndarray, step: float = 0.005) -> np.ndarray:
+        """Return the Cartesian Hessian by central differences of analytic gradients.
+
+        Row ``k`` is ``(g(x + step e_k) - g(x - step e_k)) / (2 step)``; the result is
+        symmetrised, ``(H + H^T) / 2``. The ``6 n_atoms`` displaced gradients are
+        evaluated in batches on the replicated Context.
+
+        Parameters
+        ----------
+        coords : numpy.ndarray
+            Coordinates, Å, shape ``(n_atoms, 3)``.
+        step : float
+            Displacement, Å (default 0.005).
+
+        Returns
+        -------
+        numpy.ndarray
+            Hessian of the MMFF energy, kJ mol^-1 Å^-2, shape ``(3 n_atoms, 3 n_atoms)``.
+        """
+        if not step > 0.0:
+            raise OptionError(f"step must be positive, got {step!r}")
+        x0 = self._positions(coords) / ANGSTROM_TO_NM
+        n3 = 3 * self.n_atoms
+        shifts = np.eye(n3) * step
+        displaced = np.concatenate([x0.reshape(1, n3) + shifts, x0.reshape(1, n3) - shifts])
+        grads = self._gradients(displaced.reshape(-1, self.n_atoms, 3)).reshape(2, n3, n3)
+        hess = (grads[0] - grads[1]) / (2.0 * step)
+        return 0.5 * (hess + hess.T)
+
+    def _gradients(self, coords_batch: np.ndarray) -> np.ndarray:
+        """MMFF gradients (kJ mol^-1 Å^-1) of many geometries, ``(n, n_atoms, 3)``."""
+        if len(coords_batch) > 2 and self._replicated is None:
+            self._replicated = _Engine(self.parameters, self._masses, self.slots, self.threads)
+        out = np.empty_like(coords_batch)
+        if len(coords_batch) <= 2:
+            for row, xyz in enumerate(coords_batch):
+                out[row] = self._single.forces(xyz * ANGSTROM_TO_NM, _MMFF_GROUPS)
+        else:
+            many = self._replicated
+            buffer = np.repeat(coords_batch[:1], many.n_copies, axis=0) * ANGSTROM_TO_NM
+            for begin in range(0, len(coords_batch), many.n_copies):
+                chunk = coords_batch[begin : begin + many.n_copies]
+                buffer[: len(chunk)] = chunk * ANGSTROM_TO_NM
+                forces = many.forces(buffer.reshape(-1, 3), _MMFF_GROUPS)
+                out[begin : begin + len(chunk)] = forces.reshape(-1, self.n_atoms, 3)[: len(chunk)]
+        return -out * ANGSTROM_TO_NM
+
     # -- minimisation -----------------------------------------------------------------
     def _restraint_targets(self, restraints: Sequence[Sequence[float]] | None) -> dict[int, float]:
         targets: dict[int, float] = {}
@@ -585,7 +649,7 @@ class MMFFModel(EnergyModel):
                 raise OptionError(f"a restraint is (i, j, k, l, target_deg), got {item!r}")
             key = tuple(int(a) for a in item[:4])
             if key not in self._dihedral_slot:
-                raise OptionError(f"restraint atoms {key} are not a bonded dihedral i-j-k-l of the molecule")
+                raise OptionError(f"restraint atoms {key} are not a bonded dihedral i-j-k-l")
             target = float(item[4])
             if not math.isfinite(target):
                 raise OptionError(f"restraint target must be finite, got {item[4]!r}")
@@ -615,7 +679,8 @@ class MMFFModel(EnergyModel):
         restraints : sequence of (i, j, k, l, target_deg), optional
             Dihedral restraints (each i-j-k-l must be bonded), applied during the
             minimisation only: ``E = k * max(0, |phi - target| - width)^2`` with the
-            difference wrapped to (-180, 180] degrees.
+            difference wrapped to [-180, 180) degrees (dihedral sign as RDKit's
+            ``GetDihedralDeg``).
         restraint_force_constant : float
             ``k`` in kJ mol^-1 rad^-2.
         restraint_width : float
@@ -654,9 +719,11 @@ class MMFFModel(EnergyModel):
         engines = [self._single] + ([self._replicated] if use_replicated else [])
         for engine in engines:
             engine.set_restraints(targets, restraint_force_constant, width)
-        self._precond.set_restraints(
-            self.parameters.dihedrals[list(targets)] if targets else None, restraint_force_constant
-        )
+        key = (tuple(sorted(targets)), float(restraint_force_constant) if targets else 0.0)
+        if key != self._precond_key:
+            quads = self.parameters.dihedrals[list(key[0])] if targets else None
+            self._precond.set_restraints(quads, restraint_force_constant)
+            self._precond_key = key
         n3 = 3 * self.n_atoms
         if use_replicated and math.isnan(self._single.seconds_per_call):
             for _ in range(3):  # time the single Context to choose the cheaper path later
@@ -679,9 +746,8 @@ class MMFFModel(EnergyModel):
             return out * grad_scale
 
         with _blas_threads(1):
-            runner = _SlotMinimizer(
-                self.slots if use_replicated else 1, self._precond, float(tolerance), int(max_iterations)
-            )
+            n_run = self.slots if use_replicated else 1
+            runner = _SlotMinimizer(n_run, self._precond, float(tolerance), int(max_iterations))
             raw = runner.run(batch.reshape(len(batch), n3), evaluate)
         results = []
         for x, rms, converged, iters, evals in raw:

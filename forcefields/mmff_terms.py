@@ -1,22 +1,20 @@
-"""MMFF94/MMFF94s parameters from RDKit and one OpenMM force per MMFF term.
+"""MMFF94/MMFF94s parameters from RDKit, one OpenMM force per MMFF term, and the
+model Hessian that preconditions the minimiser.
 
-This module does the two halves of the MMFF bridge that do not depend on how the
-System is used:
+* :func:`extract_parameters` reads every term's parameters for one molecule from RDKit's
+  MMFF implementation (``rdForceFieldHelpers.MMFFGetMoleculeProperties``) and selects
+  the terms exactly as RDKit's MMFF builder does;
+* one builder per term (:func:`_bond_force`, :func:`_angle_force`, ...) turns them into
+  an OpenMM ``Custom*Force`` with per-term parameters in OpenMM's units (nm, rad,
+  kJ/mol), for ``n_copies`` non-interacting copies of the molecule (copy ``c`` owns
+  particles ``c*n_atoms ... (c+1)*n_atoms-1``);
+* :class:`Preconditioner` inverts the Gauss-Newton Hessian of the valence terms.
 
-* :func:`extract_parameters` reads every term's parameters for one molecule from
-  RDKit's MMFF implementation (``rdForceFieldHelpers.MMFFGetMoleculeProperties``)
-  and selects the terms exactly as RDKit's MMFF builder does;
-* one builder per term (:func:`_bond_force`, :func:`_angle_force`, ...) turns them
-  into an OpenMM ``Custom*Force`` with per-term parameters, written in OpenMM's units
-  (nm, rad, kJ/mol). Every builder can lay out ``n_copies`` non-interacting copies of
-  the molecule in one System (copy ``c`` owns particles ``c*n_atoms ... (c+1)*n_atoms-1``),
-  which the batched minimiser of :mod:`forcefields.mmff` uses.
-
-The functional forms are those of Halgren, J. Comput. Chem. 1996, 17, 490 (MMFF94,
-part I) and 17, 616 (MMFF94s): the numbers 143.9325 (md Å^-1 -> kcal mol^-1 Å^-2),
-2.51210 (= 143.9325 * pi/180), 0.043844 (= 143.9325 * (pi/180)^2) and 332.0716
-(electrostatic conversion, kcal Å mol^-1 e^-2) are MMFF parameters, not unit
-conversions of this project. Every other factor comes from :mod:`chairbuild.constants`.
+The functional forms are those of Halgren, J. Comput. Chem. 1996, 17, 490 (MMFF94) and
+17, 616 (MMFF94s): 143.9325 (md Å^-1 -> kcal mol^-1 Å^-2), 2.51210 (= 143.9325 pi/180),
+0.043844 (= 143.9325 (pi/180)^2) and 332.0716 (kcal Å mol^-1 e^-2) are MMFF parameters,
+not unit conversions of this project; every other factor comes from
+:mod:`chairbuild.constants`.
 """
 
 from __future__ import annotations
@@ -26,6 +24,7 @@ import os
 import sys
 import tempfile
 from dataclasses import dataclass
+from collections.abc import Callable
 from typing import TYPE_CHECKING
 
 import numpy as np
@@ -80,8 +79,7 @@ ZERO_CHARGE = 1.0e-10
 #: OpenMM to compile than an explicit clip.
 _SHRINK = 1.0 - 1.0e-14
 
-#: Preconditioner settings: diagonal shift (kJ mol^-1 Å^-2) and the floor added to
-#: each torsion's force constant (kJ mol^-1 rad^-2).
+#: Preconditioner: diagonal shift (kJ mol^-1 Å^-2), floor of torsion constants (kJ mol^-1 rad^-2).
 _PRECOND_SHIFT = 1.0 * KCAL_TO_KJ
 _PRECOND_TORSION_FLOOR = 2.0 * KCAL_TO_KJ
 
@@ -120,25 +118,21 @@ class MMFFParameters:
     charges : numpy.ndarray
         MMFF partial charges, e.
     bonds, bond_kb, bond_r0
-        Atom pairs ``(n, 2)``, force constants (md/Å) and rest lengths (Å).
+        Atom pairs ``(n, 2)``, force constants (md/Å), rest lengths (Å).
     angles, angle_ka, angle_theta0, angle_linear
         Triples ``(n, 3)`` (centre in the middle), md Å/rad^2, degrees, linear flag.
     stbn, stbn_kijk, stbn_kkji, stbn_r0ij, stbn_r0kj, stbn_theta0
-        Stretch-bend triples ``(n, 3)`` and their two force constants (md/rad) with the
-        rest lengths and angle they refer to.
+        Stretch-bend triples, the two force constants (md/rad), rest lengths and angle.
     oops, oop_koop
-        Out-of-plane quadruples ``(n, 4)`` as ``(i, centre, k, l)`` (l is the atom whose
-        bond leaves the i-centre-k plane) and force constants (md Å/rad^2).
+        Quadruples ``(i, centre, k, l)`` (bond centre-l leaves plane i-centre-k), md Å/rad^2.
     torsions, torsion_v
-        Quadruples ``(n, 4)`` and ``(n, 3)`` V1, V2, V3 (kcal/mol).
+        Quadruples ``(n, 4)`` and V1, V2, V3 ``(n, 3)`` (kcal/mol).
     vdw_pairs, vdw_rstar, vdw_eps
-        Pairs ``(n, 2)`` 1-4 or further apart, R*_ij (Å) and epsilon_ij (kcal/mol).
+        Pairs 1-4 or further apart, R*_ij (Å), epsilon_ij (kcal/mol).
     ele_pairs, ele_qq, ele_one_four
-        Pairs ``(n, 2)`` 1-4 or further apart with both charges non-zero,
-        ``q_i q_j / D`` (e^2) and the 1-4 flag.
+        Such pairs with both charges non-zero, ``q_i q_j / D`` (e^2), 1-4 flag.
     dihedrals : numpy.ndarray
-        Every bonded quadruple i-j-k-l (no repeated atom), ``(n, 4)``: the slots of
-        the restraint force.
+        Every bonded quadruple i-j-k-l ``(n, 4)``: the slots of the restraint force.
     """
 
     n_atoms: int
@@ -220,9 +214,7 @@ def _untyped_atoms(mol: Chem.Mol, variant: str) -> list[str]:
     with tempfile.TemporaryFile() as sink:
         os.dup2(sink.fileno(), stdout_fd)
         try:
-            rdForceFieldHelpers.MMFFGetMoleculeProperties(
-                mol, mmffVariant=variant, mmffVerbosity=2
-            )
+            rdForceFieldHelpers.MMFFGetMoleculeProperties(mol, mmffVariant=variant, mmffVerbosity=2)
         finally:
             os.dup2(saved, stdout_fd)
             os.close(saved)
@@ -235,12 +227,6 @@ def _untyped_atoms(mol: Chem.Mol, variant: str) -> list[str]:
             sym = mol.GetAtomWithIdx(idx).GetSymbol()
             bad.append(f"atom {idx} ({sym}): no MMFF atom type matches its bonding")
     return bad or ["RDKit assigned no MMFF atom type to some atom (not identified)"]
-
-
-def _topological_distances(mol: Chem.Mol) -> np.ndarray:
-    from rdkit import Chem
-
-    return np.asarray(Chem.GetDistanceMatrix(mol), dtype=float)
 
 
 def extract_parameters(
@@ -282,9 +268,10 @@ def extract_parameters(
     torsions about bonds matching :data:`TORSION_BOND_SMARTS` whose two atoms are sp2
     or sp3, skipping three-membered rings; van der Waals and electrostatics for pairs
     at least three bonds apart by shortest path (1-4 electrostatics scaled by 0.75,
-    electrostatics skipped where a charge is zero). RDKit drops non-bonded pairs farther
-    apart than 100 Å in the starting geometry; this System keeps every pair, which is
-    identical for any molecule smaller than 100 Å.
+    electrostatics skipped where a charge is zero), none between disconnected fragments
+    (RDKit's default ``ignoreInterfragInteractions``). RDKit also drops non-bonded pairs
+    farther apart than 100 Å in the starting geometry; this System keeps every pair,
+    which is identical for any molecule smaller than 100 Å.
     """
     from rdkit import Chem
     from rdkit.Chem import rdForceFieldHelpers
@@ -395,15 +382,18 @@ def extract_parameters(
                 torsions.append((i, j, k, l_idx))
                 torsion_v.append(p[1:4])
 
+    # RDKit leaves out a term it finds no parameters for; that is only an error (and
+    # is reported as one) where RDKit itself says parameters are missing.
     if missing and not rdForceFieldHelpers.MMFFHasAllMoleculeParams(mol):
-        raise ForceFieldError(
-            f"{rd_variant} has no parameters for: " + "; ".join(missing[:20])
-        )
+        raise ForceFieldError(f"{rd_variant} has no parameters for: " + "; ".join(missing[:20]))
 
     # Non-bonded pairs: 1-4 and beyond by shortest path.
-    topo = _topological_distances(mol)
+    topo = np.asarray(Chem.GetDistanceMatrix(mol), dtype=float)  # bonds on the shortest path
+    fragment = np.zeros(n_atoms, dtype=int)
+    for number, atoms in enumerate(Chem.GetMolFrags(mol)):
+        fragment[list(atoms)] = number
     iu, ju = np.triu_indices(n_atoms, k=1)
-    far = topo[iu, ju] >= 3
+    far = (topo[iu, ju] >= 3) & (fragment[iu] == fragment[ju])
     iu, ju = iu[far], ju[far]
     vdw_cache: dict[tuple[int, int], tuple[float, float]] = {}
     vdw_rstar = np.empty(len(iu))
@@ -413,7 +403,7 @@ def extract_parameters(
         if key not in vdw_cache:
             p = props.GetMMFFVdWParams(i, j)
             if p is None:
-                raise ForceFieldError(f"{rd_variant} has no van der Waals parameters for {label(i, j)}")
+                raise ForceFieldError(f"{rd_variant} has no van der Waals parameters: {label(i, j)}")
             vdw_cache[key] = (p[2], p[3])
         vdw_rstar[n], vdw_eps[n] = vdw_cache[key]
     charged = (np.abs(charges[iu]) >= ZERO_CHARGE) & (np.abs(charges[ju]) >= ZERO_CHARGE)
@@ -422,7 +412,8 @@ def extract_parameters(
     dihedrals = _bonded_dihedrals(mol)
 
     def arr(x: list, width: int, dtype: type = float) -> np.ndarray:
-        return np.asarray(x, dtype=dtype).reshape(-1, width) if width else np.asarray(x, dtype=dtype)
+        out = np.asarray(x, dtype=dtype)
+        return out.reshape(-1, width) if width else out
 
     return MMFFParameters(
         n_atoms=n_atoms,
@@ -480,16 +471,20 @@ def _bonded_dihedrals(mol: Chem.Mol) -> np.ndarray:
 # --------------------------------------------------------------------------------------
 
 
-def _offsets(n_atoms: int, n_copies: int) -> np.ndarray:
-    return (np.arange(n_copies) * n_atoms)[:, None, None]
-
-
 def _replicate(index: np.ndarray, n_atoms: int, n_copies: int) -> np.ndarray:
     """Atom indices of every copy, shape ``(n_copies * n_terms, width)``."""
-    return (index[None, :, :] + _offsets(n_atoms, n_copies)).reshape(-1, index.shape[1])
+    offsets = (np.arange(n_copies) * n_atoms)[:, None, None]
+    return (index[None, :, :] + offsets).reshape(-1, index.shape[1])
 
 
-def _fill(force, adder, index: np.ndarray, values: np.ndarray, n_atoms: int, n_copies: int):
+def _fill(
+    force: openmm.Force,
+    adder: Callable[..., int],
+    index: np.ndarray,
+    values: np.ndarray,
+    n_atoms: int,
+    n_copies: int,
+) -> openmm.Force:
     """Add every term of every copy; ``values`` has one row of parameters per term."""
     idx = _replicate(index, n_atoms, n_copies).tolist()
     vals = np.tile(values, (n_copies, 1)).tolist()
@@ -534,7 +529,9 @@ def _angle_force(p: MMFFParameters, n_copies: int = 1) -> openmm.CustomAngleForc
         force.addPerAngleParameter(name)
     ka = KCAL_TO_KJ * MDYNE_A_TO_KCAL_MOL * p.angle_ka
     lin = p.angle_linear
-    vals = np.column_stack([np.where(lin, 0.0, 0.5 * ka), np.where(lin, ka, 0.0), np.radians(p.angle_theta0)])
+    vals = np.column_stack(
+        [np.where(lin, 0.0, 0.5 * ka), np.where(lin, ka, 0.0), np.radians(p.angle_theta0)]
+    )
     force.setForceGroup(TERM_GROUPS["angle"])
     return _fill(force, force.addAngle, p.angles, vals, p.n_atoms, n_copies)
 
@@ -581,7 +578,8 @@ def _oop_force(p: MMFFParameters, n_copies: int = 1) -> openmm.CustomCompoundBon
     """
     force = openmm.CustomCompoundBondForce(
         4,
-        f"k*asin({_SHRINK!r}*(nx*lx + ny*ly + nz*lz)/sqrt((nx*nx + ny*ny + nz*nz)*(lx*lx + ly*ly + lz*lz)))^2; "
+        f"k*asin({_SHRINK!r}*(nx*lx + ny*ly + nz*lz)/sqrt(nn*(lx*lx + ly*ly + lz*lz)))^2; "
+        "nn = nx*nx + ny*ny + nz*nz; "
         "nx = ay*bz - az*by; ny = az*bx - ax*bz; nz = ax*by - ay*bx; "
         "ax = x1 - x2; ay = y1 - y2; az = z1 - z2; bx = x3 - x2; by = y3 - y2; bz = z3 - z2; "
         "lx = x4 - x2; ly = y4 - y2; lz = z4 - z2",
@@ -687,16 +685,8 @@ def build_forces(p: MMFFParameters, n_copies: int = 1) -> list[openmm.Force]:
     gets no force: its group then simply contributes zero, and the Context is spared
     compiling an expression it never evaluates.
     """
-    counts = {
-        "bond": len(p.bonds),
-        "angle": len(p.angles),
-        "stretch_bend": len(p.stbn),
-        "oop": len(p.oops),
-        "torsion": len(p.torsions),
-        "vdw": len(p.vdw_pairs),
-        "electrostatic": len(p.ele_pairs),
-    }
-    return [builder(p, n_copies) for name, builder in TERM_BUILDERS.items() if counts[name]]
+    terms = (p.bonds, p.angles, p.stbn, p.oops, p.torsions, p.vdw_pairs, p.ele_pairs)
+    return [build(p, n_copies) for build, idx in zip(TERM_BUILDERS.values(), terms) if len(idx)]
 
 
 # --------------------------------------------------------------------------------------
@@ -796,13 +786,15 @@ class Preconditioner:
             hess = np.zeros((k, n3, n3))
         hess[:, np.arange(n3), np.arange(n3)] += _PRECOND_SHIFT
         out = np.empty_like(hess)
+        failed = []
         for s in range(k):
             # P is symmetric: hess[s].T is P in LAPACK's Fortran order without a copy.
-            chol, info = lapack.dpotrf(hess[s].T, lower=1, clean=0, overwrite_a=1)
+            chol, info = lapack.dpotrf(hess[s].T, lower=1, clean=0)
             inv, info2 = lapack.dpotri(chol, lower=1, overwrite_c=1) if info == 0 else (chol, 1)
+            out[s] = inv.T  # upper triangle of out[s] holds P^-1
             if info2 != 0:  # cannot happen for an SPD matrix; fall back to the diagonal
-                out[s] = np.diag(1.0 / (np.abs(np.diag(hess[s])) + _PRECOND_SHIFT))
-                continue
-            lower = np.tril(inv)
-            out[s] = lower + np.tril(inv, -1).T
+                failed.append(s)
+        out = np.triu(out) + np.swapaxes(np.triu(out, 1), 1, 2)
+        for s in failed:
+            out[s] = np.diag(1.0 / np.abs(np.diag(hess[s])))
         return out

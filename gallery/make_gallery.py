@@ -47,7 +47,7 @@ def family_summary(var: str) -> str:
     model = "n/a" if fam.model_energy is None else f"{{fam.model_energy:6.2f}}"
     flag = "  DISAGREES" if fam.disagreement else ""
     print(f"ring {{fam.ring_index}}  {{100 * fam.population:6.2f}} %  additive {{add}}  force field {{model}} kJ/mol  "
-          f"{{fam.label.split(' [additive')[0]}}{{flag}}")"""
+          f"{{fam.label}}{{flag}}")"""
 
 
 @dataclass(frozen=True)
@@ -144,7 +144,7 @@ print(format_table(ens, max_rows=12))"""),
             ("code", """for fam in ens.families:
     if fam.additive_energy is None:
         continue
-    print(f"{fam.label.split(' [additive')[0]}: additive {fam.additive_energy:.2f}, force field {fam.model_energy:.2f} kJ/mol")
+    print(f"{fam.label}: additive {fam.additive_energy:.2f}, force field {fam.model_energy:.2f} kJ/mol")
     for term in fam.additive_terms:
         print(f"    {term.kind:<14} atoms {term.atoms}  {term.value:+6.2f} kJ/mol   [{term.source[:70]}]")"""),
             ("code", PLOTS),
