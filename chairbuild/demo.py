@@ -25,11 +25,22 @@ def run_demo(output_dir: str = "demo-output", progress: bool = False) -> int:
     from chairbuild.output import format_table, write
     from chairbuild.pipeline import analyze
 
+    from chairbuild.report import write_report
+
     out = Path(output_dir)
+    ensembles = []
     print(__doc__.strip().split("\n\n")[1].replace("\n", " "), end="\n\n")
     for k, (name, smiles) in enumerate(DEMO_MOLECULES, start=1):
         ens = analyze(smiles, name=name, progress=progress)
+        ensembles.append(ens)
         print(format_table(ens))
+        print()
+        # the same ensemble re-scored with GFN2-xTB in water (single points at the MMFF geometries)
+        wet = analyze(smiles, name=name, progress=progress, rerank="gfn2", solvent="water")
+        print(f"re-ranked with {wet.method}: chair families of ring 0")
+        for fam in wet.families:
+            if fam.ring_index == 0 and ":chair[" in fam.key:
+                print(f"  {100 * fam.population:6.2f} %  dG {fam.delta_g:6.2f} kJ/mol  {fam.label}")
         print()
         for suffix in (".sdf", ".json"):
             for path in write(ens, str(out / f"isomer_{k}{suffix}")):
@@ -41,5 +52,9 @@ def run_demo(output_dir: str = "demo-output", progress: bool = False) -> int:
             f"[{counts['starting_structures']} starting structures, {counts['minimisations']} minimisations, "
             f"{counts['distinct_minima']} distinct minima, {timing:.1f} s]\n"
         )
-    print("These are model estimates (MMFF94 in the gas phase); confirm decisions by experiment or higher-level calculation.")
+    print(f"wrote {write_report(ensembles, str(out / 'report.html'))} (open it in a browser)")
+    print(
+        "These are model estimates (MMFF94 in the gas phase; GFN2-xTB with implicit water); confirm decisions "
+        "by experiment or higher-level calculation."
+    )
     return 0

@@ -73,7 +73,7 @@ def axial_minus_equatorial(ensemble) -> float:
     return float(rt_kj(ensemble.temperature) * np.log(p_eq / p_ax))
 
 
-def compute(case: AValueCase, level: str, threads: int | None = 1) -> float:
+def compute(case: AValueCase, level: str, threads: int | None = None) -> float:
     from chairbuild.pipeline import analyze
 
     options = dict(LEVELS[level])

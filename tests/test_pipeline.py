@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -153,3 +154,28 @@ def test_enumerate_stereo_returns_each_diastereomer():
     ensembles = analyze_all("CC1CCC(C)CC1", enumerate_stereo=True)
     assert len(ensembles) == 2
     assert len({e.smiles for e in ensembles}) == 2
+
+
+def test_levels_and_free_energies_reach_the_json():
+    ens = analyze("CC1CCCCC1", rerank="gfn2", solvent="chloroform", free_energy=True)
+    assert ens.method == "GFN2-xTB/ALPB(chloroform)//MMFF94"
+    data = json.loads(ens.to_json())
+    assert data["ranking"] == "free_energy"
+    for conf in data["conformers"]:
+        assert conf["enthalpy"] is not None and conf["free_energy"] is not None
+        assert set(conf["energies"]) == {"MMFF94", "GFN2-xTB/ALPB(chloroform)//MMFF94"}
+    # the ranking quantity is G: relative energies are free-energy differences
+    g = np.array([c["free_energy"] for c in data["conformers"]])
+    assert np.allclose([c["relative_energy"] for c in data["conformers"]], g - g.min(), atol=1e-3)
+    # C1 symmetric chair conformers of methylcyclohexane: rotational symmetry number 1 (common practice, no source)
+    assert data["conformers"][0]["symmetry_number"] == 1
+
+
+def test_demo_runs_and_writes_its_files(capsys):
+    from chairbuild.demo import run_demo
+
+    assert run_demo("demo-output") == 0
+    out = capsys.readouterr().out
+    assert "model estimates" in out and "re-ranked with GFN2-xTB/ALPB(water)//MMFF94" in out
+    for name in ("isomer_1.sdf", "isomer_2.json", "report.html", "isomer_1_xyz/rank_001.xyz"):
+        assert (Path("demo-output") / name).exists(), name
