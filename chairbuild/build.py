@@ -595,15 +595,17 @@ def _core_options(mol, core_xyz: dict[int, np.ndarray], atoms: list[int], ranks)
     return cores
 
 
-def _system_states(mol, problem: "_CoreProblem", combos, template, ranks):
+def _system_states(mol, problem: "_CoreProblem", combos, template, ranks, progress: bool = False):
     """Feasible (label, states, cores) of one ring system, and the number of infeasible combinations.
 
     When no combination of chair and twist-boat states fits (a bridged system such as
     bicyclo[2.2.2]octane, whose rings are boats), the system is built once from the
     template embedding instead, labelled ``embedded``.
     """
+    from tqdm import tqdm
+
     feasible = []
-    for states in combos:
+    for states in tqdm(combos, desc="ring states", unit="state", disable=not progress or len(combos) < 10, leave=False):
         coords = problem.solve(states, _core_guesses(problem, states, template))
         if coords is None:
             continue
@@ -627,6 +629,7 @@ def build_starting_structures(
     achiral: bool,
     max_rotamers: int = DEFAULT_MAX_ROTAMERS,
     include_twist_boats: bool = True,
+    progress: bool = False,
 ) -> BuildReport:
     """Enumerate and build every starting structure of ``mol``.
 
@@ -643,6 +646,8 @@ def build_starting_structures(
         Cap on rotamer combinations per ring-state combination.
     include_twist_boats : bool
         Build twist-boat states too (default True).
+    progress : bool
+        Progress bar over ring-state combinations (large ring systems).
 
     Returns
     -------
@@ -692,7 +697,7 @@ def build_starting_structures(
     conf_mol.AddConformer(conf, assignId=True)
     per_system = {}
     for s in system_ids:
-        per_system[s], n_bad = _system_states(mol, problems[s], combos_per_system[s], template, ranks)
+        per_system[s], n_bad = _system_states(mol, problems[s], combos_per_system[s], template, ranks, progress)
         n_infeasible += n_bad
         if per_system[s][0][0] is None:
             notes.append(

@@ -28,7 +28,7 @@ from chairbuild.result import Status
 __all__ = ["ForceFieldVariant", "MinimisedStructure", "minimise_starts", "deduplicate"]
 
 #: Structures per OpenMM batch; also the granularity of the progress bar.
-BATCH_SIZE = 64
+BATCH_SIZE = 256
 DEFAULT_RMSD_THRESHOLD = 0.25
 DEFAULT_ENERGY_TOLERANCE = 0.5
 

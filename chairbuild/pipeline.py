@@ -176,6 +176,7 @@ def _run_one(prepared, opts: AnalysisOptions):
         prepared.achiral,
         max_rotamers=opts.max_rotamers,
         include_twist_boats=opts.twist_boats,
+        progress=opts.progress,
     )
     timings["build_s"] = time.perf_counter() - t0
     t1 = time.perf_counter()
