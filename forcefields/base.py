@@ -52,6 +52,10 @@ class EnergyModel(abc.ABC):
         Each Cartesian coordinate is displaced by ±``step`` Å (6N gradient evaluations);
         the result is symmetrised.
         """
+        from chairbuild.errors import OptionError
+
+        if not step > 0:
+            raise OptionError(f"step must be > 0, got {step!r}")
         x0 = np.array(coords, dtype=float)
         n = x0.size
         hess = np.empty((n, n))

@@ -519,18 +519,9 @@ class XTBModel(EnergyModel):
         """
         if not step > 0:
             raise OptionError(f"step must be > 0, got {step!r}")
-        x0 = self._check_coords(coords).ravel()
-        n3 = x0.size
-        hess = np.empty((n3, n3))
+        x0 = self._check_coords(coords)
         with self._scf_accuracy(min(self.accuracy, _HESSIAN_ACCURACY)):
-            for k in range(n3):
-                x = x0.copy()
-                x[k] = x0[k] + step
-                g_plus = self.energy_and_gradient(x.reshape(-1, 3))[1].ravel()
-                x[k] = x0[k] - step
-                g_minus = self.energy_and_gradient(x.reshape(-1, 3))[1].ravel()
-                hess[k] = (g_plus - g_minus) / (2.0 * step)
-        return 0.5 * (hess + hess.T)
+            return super().hessian(x0, step)
 
     @contextlib.contextmanager
     def _scf_accuracy(self, accuracy: float) -> Iterator[None]:
