@@ -15,7 +15,7 @@ count for achiral molecules) of it.
 from __future__ import annotations
 
 import enum
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Sequence
 
 import numpy as np
@@ -126,16 +126,5 @@ def deduplicate(
             continue
         dedupe.add(s.coords, s.energy)
         degeneracy = 2 if achiral and dedupe.is_chiral_conformer(s.coords) else 1
-        kept.append(
-            MinimisedStructure(
-                coords=s.coords,
-                energy=s.energy,
-                rms_gradient=s.rms_gradient,
-                converged=s.converged,
-                origin=s.origin,
-                status=s.status,
-                message=s.message,
-                degeneracy=degeneracy,
-            )
-        )
+        kept.append(replace(s, degeneracy=degeneracy))
     return kept

@@ -249,50 +249,48 @@ def _assemble_result(prepared, analysis, ranked, rejected, opts, method_label, b
         if kept
         else np.array([])
     )
-    records = []
     n_rings = len(analysis.rings)
-    for rank, (k, p) in enumerate(zip(kept, pops)):
-        s = k.structure
-        rings, subs = describe_conformer(mol, analysis, s.coords)
-        records.append(
-            ConformerRecord(
-                id=rank,
-                coords=s.coords,
-                energies=k.energies,
-                relative_energy=k.ranking_energy - e_min,
-                population=float(p),
-                degeneracy=s.degeneracy,
-                rings=rings,
-                substituents=subs,
-                families=family_keys(n_rings, rings, subs),
-                converged=s.converged,
-                rms_gradient=s.rms_gradient,
-                origin=s.origin,
-                thermo=k.thermo,
-            )
+
+    def record(structure, **fields):
+        rings, subs = describe_conformer(mol, analysis, structure.coords)
+        return ConformerRecord(
+            coords=structure.coords,
+            rings=rings,
+            substituents=subs,
+            families=family_keys(n_rings, rings, subs),
+            converged=structure.converged,
+            rms_gradient=structure.rms_gradient,
+            origin=structure.origin,
+            **fields,
         )
+
+    records = [
+        record(
+            k.structure,
+            id=rank,
+            energies=k.energies,
+            relative_energy=k.ranking_energy - e_min,
+            population=float(p),
+            degeneracy=k.structure.degeneracy,
+            thermo=k.thermo,
+        )
+        for rank, (k, p) in enumerate(zip(kept, pops))
+    ]
     method = method_label
-    rejected_records = []
-    for j, m in enumerate(rejected):
-        rings, subs = describe_conformer(mol, analysis, m.coords)
-        rejected_records.append(
-            ConformerRecord(
-                id=-(j + 1),
-                coords=m.coords,
-                energies={"last level": m.energy},
-                relative_energy=float("nan"),
-                population=0.0,
-                degeneracy=1,
-                rings=rings,
-                substituents=subs,
-                families=family_keys(n_rings, rings, subs),
-                converged=m.converged,
-                rms_gradient=m.rms_gradient,
-                status=m.status,
-                message=m.message,
-                origin=m.origin,
-            )
+    # rejected structures: their last energy may belong to another level, so no relative energy
+    rejected_records = [
+        record(
+            m,
+            id=-(j + 1),
+            energies={"last level": m.energy},
+            relative_energy=float("nan"),
+            population=0.0,
+            degeneracy=1,
+            status=m.status,
+            message=m.message,
         )
+        for j, m in enumerate(rejected)
+    ]
     symbols = tuple(a.GetSymbol() for a in mol.GetAtoms())
     families = build_families(records, n_rings, symbols, opts.temperature, _additive_scorer(mol, analysis))
     timings["describe_s"] = time.perf_counter() - t

@@ -251,7 +251,7 @@ class ConformerRecord:
         out: dict[str, Any] = {
             "id": self.id,
             "status": self.status.value,
-            "relative_energy": round(unit.from_kj(self.relative_energy), 4),
+            "relative_energy": round(unit.from_kj(self.relative_energy), 4) if np.isfinite(self.relative_energy) else None,
             "population": round(self.population, 6),
             "degeneracy": self.degeneracy,
             "energies": {k: round(unit.from_kj(v), 4) for k, v in self.energies.items()},
@@ -343,7 +343,7 @@ class FamilyRecord:
 
     def to_dict(self, unit: EnergyUnit) -> dict[str, Any]:
         def conv(v: float | None) -> float | None:
-            return None if v is None else round(unit.from_kj(v), 4)
+            return None if v is None or not np.isfinite(v) else round(unit.from_kj(v), 4)
 
         return {
             "key": self.key,
@@ -470,7 +470,7 @@ class Ensemble:
 
     def to_json(self, unit: EnergyUnit | str = EnergyUnit.KJ, indent: int | None = 2) -> str:
         """Serialize :meth:`to_dict` as a JSON string."""
-        return json.dumps(self.to_dict(unit), indent=indent)
+        return json.dumps(self.to_dict(unit), indent=indent, allow_nan=False)
 
 
 def _jsonable(value: Any) -> Any:

@@ -179,3 +179,16 @@ def test_demo_runs_and_writes_its_files(capsys):
     assert "model estimates" in out and "re-ranked with GFN2-xTB/ALPB(water)//MMFF94" in out
     for name in ("isomer_1.sdf", "isomer_2.json", "report.html", "isomer_1_xyz/rank_001.xyz"):
         assert (Path("demo-output") / name).exists(), name
+
+
+def test_json_is_strict_even_with_extreme_windows_and_rejected_records():
+    from dataclasses import replace
+
+    from chairbuild.result import Status
+
+    ens = analyze("CC1CCCCC1", window=5000.0, temperature=50.0)
+    bad = replace(ens.conformers[-1], id=-1, relative_energy=float("nan"), status=Status.NOT_CONVERGED, message="test")
+    data = json.loads(replace(ens, rejected=(bad,)).to_json())
+    assert data["rejected"][0]["relative_energy"] is None
+    assert data["rejected"][0]["status"] == "not-converged"
+    assert all(f["delta_g"] is None or f["delta_g"] >= 0 for f in data["families"])
