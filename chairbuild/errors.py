@@ -15,6 +15,7 @@ __all__ = [
     "ForceFieldError",
     "ConvergenceError",
     "OptionError",
+    "OutputError",
 ]
 
 
@@ -40,3 +41,7 @@ class ConvergenceError(ChairbuildError):
 
 class OptionError(ChairbuildError):
     """An option has an unknown name or a value outside its allowed range."""
+
+
+class OutputError(ChairbuildError):
+    """A result file cannot be written where it was asked for."""

@@ -105,6 +105,8 @@ def _parse(source: str, record: int | None) -> tuple[Chem.Mol, str]:
     if not text:
         raise InputError("empty input: give a SMILES string or an SDF/MOL file")
     path = Path(text)
+    if path.is_dir():
+        raise InputError(f"{text!r} is a directory; give a SMILES string or an SDF/MOL file")
     if path.suffix.lower() in _FILE_SUFFIXES or path.is_file():
         return _read_file(path, record)
     if record is not None:
@@ -130,6 +132,17 @@ def _unassigned_stereo_atoms(mol: Chem.Mol) -> list[str]:
                 b = mol.GetBondWithIdx(info.centeredOn)
                 labels.append(f"double bond {b.GetBeginAtomIdx()}={b.GetEndAtomIdx()}")
     return labels
+
+
+def _largest_fragment(mol: Chem.Mol) -> tuple[Chem.Mol, list[str]]:
+    """The fragment with the most heavy atoms, and the SMILES of the fragments dropped."""
+    frags = Chem.GetMolFrags(mol, asMols=True, sanitizeFrags=True)
+    if len(frags) <= 1:
+        return mol, []
+    order = sorted(range(len(frags)), key=lambda k: -frags[k].GetNumHeavyAtoms())
+    keep = frags[order[0]]
+    dropped = [Chem.MolToSmiles(frags[k]) for k in order[1:]]
+    return keep, dropped
 
 
 def _with_hydrogens(mol: Chem.Mol) -> Chem.Mol:
@@ -170,10 +183,16 @@ def read_molecules(
     """
     mol, default_name = _parse(source, record)
     name = name or default_name
+    notes: list[str] = []
+    mol, dropped = _largest_fragment(mol)
+    if dropped:
+        notes.append(
+            f"kept the largest fragment and removed {', '.join(dropped)} (salts and solvents are not analysed); "
+            "atom indices refer to the kept fragment"
+        )
     heavy = Chem.RemoveHs(mol)
     Chem.AssignStereochemistry(heavy, cleanIt=True, force=True)
     unassigned = _unassigned_stereo_atoms(heavy)
-    notes: list[str] = []
     if not unassigned:
         candidates = [heavy]
     else:

@@ -17,7 +17,7 @@ import tempfile
 from pathlib import Path
 from typing import Callable, Sequence
 
-from chairbuild.errors import OptionError
+from chairbuild.errors import OptionError, OutputError
 from chairbuild.result import THERMO_ENERGY_KEYS, EnergyUnit, Ensemble
 
 __all__ = ["write", "format_table", "sdf_text", "xyz_text", "csv_text", "SUPPORTED_SUFFIXES"]
@@ -125,8 +125,11 @@ def csv_text(ens: Ensemble, unit: EnergyUnit = EnergyUnit.KJ) -> str:
 
 
 def _atomic_write(path: Path, text: str) -> None:
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", dir=str(path.parent))
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", dir=str(path.parent))
+    except OSError as exc:
+        raise OutputError(f"cannot write {str(path)!r}: {exc.strerror or exc}") from None
     try:
         with os.fdopen(fd, "w", encoding="utf-8") as fh:
             fh.write(text)
@@ -166,15 +169,24 @@ def _is_directory_target(path_text: str) -> bool:
 
 
 def check_target(path_text: str) -> None:
-    """Raise OptionError if ``path_text`` names a format chairbuild cannot write."""
-    if _is_directory_target(path_text):
-        return
-    suffix = Path(path_text).suffix.lower()
-    if suffix not in _TEXT_WRITERS:
-        raise OptionError(
-            f"cannot write {path_text!r}: unknown extension {suffix!r}; use one of "
-            f"{', '.join(SUPPORTED_SUFFIXES)} or a directory"
-        )
+    """Raise before any work if ``path_text`` cannot be written.
+
+    OptionError for an unknown extension; OutputError when the nearest existing folder
+    on the path is not a writable directory.
+    """
+    if not _is_directory_target(path_text):
+        suffix = Path(path_text).suffix.lower()
+        if suffix not in _TEXT_WRITERS:
+            raise OptionError(
+                f"cannot write {path_text!r}: unknown extension {suffix!r}; use one of "
+                f"{', '.join(SUPPORTED_SUFFIXES)} or a directory"
+            )
+    folder = Path(path_text) if _is_directory_target(path_text) else Path(path_text).parent
+    probe = folder.absolute()
+    while not probe.exists() and probe != probe.parent:
+        probe = probe.parent
+    if not probe.is_dir() or not os.access(probe, os.W_OK | os.X_OK):
+        raise OutputError(f"cannot write {path_text!r}: {str(probe)!r} is not a writable directory")
 
 
 def write(ens: Ensemble, path_text: str, unit: EnergyUnit = EnergyUnit.KJ) -> list[Path]:

@@ -64,3 +64,14 @@ def test_json_to_stdout_in_kcal(capsys):
     data = json.loads(capsys.readouterr().out)
     assert data["energy_unit"] == "kcal/mol"
     assert all(c["relative_energy"] <= 3.0 for c in data["conformers"])
+
+
+def test_unwritable_output_is_refused_before_any_work(tmp_path):
+    locked = tmp_path / "locked"
+    locked.mkdir()
+    (locked / "file").write_text("x")
+    # a path below a regular file can never be created
+    proc = run_cli("analyze", "CC1CCCCC1", "-o", str(locked / "file" / "out.sdf"))
+    assert proc.returncode == 2
+    assert "not a writable directory" in proc.stderr and "Traceback" not in proc.stderr
+    assert proc.stdout == ""

@@ -84,3 +84,12 @@ def test_ring_perception_of_heterocycles_and_fused_systems():
     assert [s.group for s in ra.substituents] == ["H"]
     ra = analyse_rings(read_molecules("CC(=O)N1CCCCC1")[0].mol)  # amide N is not invertible
     assert ra.invertible_nitrogens == ()
+
+
+def test_directory_input_and_salts(tmp_path):
+    (tmp_path / "folder").mkdir()
+    with pytest.raises(InputError, match="is a directory"):
+        read_molecules(str(tmp_path / "folder"))
+    prepared = read_molecules("C1CC[NH2+]CC1.[Cl-]")[0]
+    assert prepared.smiles == "C1CC[NH2+]CC1"
+    assert "removed [Cl-]" in prepared.notes[0]
