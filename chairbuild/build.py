@@ -25,11 +25,14 @@ How a starting structure is made
 5. **Rotamers.** Every rotatable bond (:mod:`chairbuild.rings`) is set to each of its
    starting values (sp3–sp3 staggered 60°, 180°, 300°; see
    :func:`chairbuild.rings._staggered_angles` for bonds with sp2 ends). All-chair
-   states get the full product over bonds; states with a twist-boat get each rotor
-   varied one at a time (their rotamers matter less: they lie 20 kJ/mol or more above
-   the chairs in most rings). When the product exceeds ``max_rotamers`` (default 81),
-   the rotors nearest the rings are enumerated fully and the farther ones keep their
-   first value; a note says so.
+   states get the full product over bonds; states with a twist-boat get the first value
+   of each rotor only (they lie 20 kJ/mol or more above the chairs in most rings, and
+   their rotamers cost many minimisations for little population). When the product
+   exceeds ``max_rotamers`` (default 81), the rotors nearest the rings are enumerated
+   fully and the farther ones start at their template value; a note says so, and after
+   the first minimisation every rotor is varied one at a time around the lowest minima
+   (:func:`rotamer_variations`, up to three rounds in :mod:`chairbuild.pipeline`) to
+   recover cooperative arrangements such as the hydrogen-bond chains of polyols.
 6. **Duplicates** among the starting structures (the same structure reached by two
    routes, or its mirror image for an achiral molecule) are removed with a
    symmetry-aware heavy-atom RMSD below 0.05 Å, so each is minimised once.
@@ -115,6 +118,8 @@ class BuildReport:
     n_infeasible: int
     n_stereo_rejected: int
     n_duplicates: int
+    capped: bool = False
+
 
 
 # ---------------------------------------------------------------- stereo check
@@ -676,15 +681,13 @@ def build_starting_structures(
                 total *= len(r.angles)
         notes.append(
             f"rotamer cap reached: {n_combos_rot} combinations of {len(rotors)} rotatable bonds exceed "
-            f"max_rotamers={max_rotamers}; the {len(rotors) - len(kept)} rotor(s) farthest from the rings keep their template torsion"
+            f"max_rotamers={max_rotamers}; the {len(rotors) - len(kept)} rotor(s) farthest from the rings start at their "
+            "template torsion, and every rotor is then varied one at a time around the lowest minima"
         )
         rotors = kept
     rotamer_sets = list(itertools.product(*(r.angles for r in rotors))) if rotors else [()]
-    # non-chair states: one rotor varied at a time from the first value (their rotamers matter less)
+    # states with a twist-boat: each rotor at its first value only (see the module notes)
     boat_sets = [tuple(r.angles[0] for r in rotors)]
-    for pos, r in enumerate(rotors):
-        for value in r.angles[1:]:
-            boat_sets.append(tuple(r2.angles[0] if q != pos else value for q, r2 in enumerate(rotors)))
     assembler = _Assembler(mol, {k: p.atoms for k, p in problems.items()}, template)
     dedupe = StructureDeduplicator(mol, None, achiral=achiral, rmsd_threshold=0.05)
     starts: list[StartingStructure] = []
@@ -746,4 +749,37 @@ def build_starting_structures(
         n_infeasible=n_infeasible,
         n_stereo_rejected=n_stereo,
         n_duplicates=n_dup,
+        capped=n_combos_rot > max_rotamers,
     )
+
+
+def rotamer_variations(
+    mol: Chem.Mol, analysis: RingAnalysis, seeds: Sequence[np.ndarray], origin: str = "refine"
+) -> list[StartingStructure]:
+    """New starts from minimised ``seeds``: every rotor set, one at a time, to each of its other values.
+
+    Used after the rotamer cap bit: a hill-climbing pass over rotor settings around the
+    lowest minima finds the cooperative arrangements (hydrogen-bond chains of polyols)
+    that the capped product left out.
+    """
+    work = Chem.Mol(mol)
+    work.RemoveAllConformers()
+    work.AddConformer(Chem.Conformer(mol.GetNumAtoms()), assignId=True)
+    conf = work.GetConformer()
+    out = []
+    for k, xyz in enumerate(seeds):
+        for r_idx, rotor in enumerate(analysis.rotors):
+            current = rdMolTransforms.GetDihedralDeg(_set_positions(conf, xyz), *rotor.atoms)
+            for value in rotor.angles:
+                if abs(((value - current + 180.0) % 360.0) - 180.0) < 40.0:
+                    continue  # already there
+                _set_positions(conf, xyz)
+                _set_rotamer(conf, rotor.atoms, value)
+                out.append(StartingStructure(coords=conf.GetPositions(), origin=f"{origin}:seed{k}:rotor{r_idx}={value:.0f}"))
+    return out
+
+
+def _set_positions(conf: Chem.Conformer, xyz: np.ndarray) -> Chem.Conformer:
+    for i, p in enumerate(xyz):
+        conf.SetAtomPosition(i, p.tolist())
+    return conf

@@ -184,6 +184,11 @@ def _run_one(prepared, opts: AnalysisOptions):
         mol, report.starts, prepared.smiles, variant=opts.forcefield, threads=opts.threads, progress=opts.progress
     )
     distinct = deduplicate(mol, minimised, prepared.achiral)
+    if report.capped:
+        extra, n_extra = _refine_rotamers(mol, analysis, prepared, distinct, opts)
+        minimised += extra
+        n_min += n_extra
+        distinct = deduplicate(mol, minimised, prepared.achiral)
     timings["minimise_s"] = time.perf_counter() - t1
     rejected = [m for m in minimised if m.status.value != "ok"]
     t2 = time.perf_counter()
@@ -222,6 +227,40 @@ def _run_one(prepared, opts: AnalysisOptions):
     provenance["timings"] = {k: round(v, 3) for k, v in timings.items()}
     provenance["chairbuild"] = __version__
     return replace(ensemble, provenance=provenance)
+
+
+#: Rotamer refinement after the cap bit: seeds per round, rounds, and the energy range of seeds (kJ/mol).
+REFINE_SEEDS = 6
+REFINE_ROUNDS = 3
+REFINE_RANGE_KJ = 15.0
+
+
+def _refine_rotamers(mol, analysis, prepared, distinct, opts):
+    """Vary rotors one at a time around the lowest minima until no new low minimum appears."""
+    from chairbuild.build import rotamer_variations
+    from chairbuild.minimise import deduplicate, minimise_starts
+
+    extra = []
+    n_min = 0
+    tried: set[float] = set()
+    current = list(distinct)
+    for round_k in range(REFINE_ROUNDS):
+        e0 = min(s.energy for s in current)
+        seeds = [s for s in current if s.energy - e0 <= REFINE_RANGE_KJ and round(s.energy, 4) not in tried][:REFINE_SEEDS]
+        if not seeds:
+            break
+        tried.update(round(s.energy, 4) for s in seeds)
+        starts = rotamer_variations(mol, analysis, [s.coords for s in seeds], origin=f"refine{round_k + 1}")
+        new, n = minimise_starts(mol, starts, prepared.smiles, variant=opts.forcefield, threads=opts.threads, progress=opts.progress)
+        extra += new
+        n_min += n
+        merged = deduplicate(mol, list(current) + new, prepared.achiral)
+        before = {round(s.energy, 3) for s in current if s.energy - e0 <= REFINE_RANGE_KJ}
+        after = {round(s.energy, 3) for s in merged if s.energy - min(m.energy for m in merged) <= REFINE_RANGE_KJ}
+        current = merged
+        if after <= before:
+            break
+    return extra, n_min
 
 
 def _assemble_result(prepared, analysis, ranked, rejected, opts, method_label, build_notes, counts, timings):

@@ -285,7 +285,8 @@ def _staggered_angles(mol: Chem.Mol, j: int, k: int, ranks: list[int]) -> tuple[
 
     * sp3–sp3: 60°, 180°, 300° (staggered);
     * sp2–sp2 (conjugated: esters, acids, aryl ketones, enol ethers): 0°, 180° (planar);
-    * sp3–sp2: 0°, 120°, 240° (the sp2 plane eclipsing each bond of the sp3 end), or
+    * sp3–sp2: every 60° (the sp2 plane eclipsing or bisecting each bond of the sp3 end;
+      three starts at 0°, 120°, 240° missed a minimum of cyclohexanecarboxylic acid), or
       0°, 60°, 120° when the sp2 end is two-fold symmetric (phenyl, nitro, carboxylate).
     """
     sp2_j, sp2_k = _is_sp2(mol.GetAtomWithIdx(j)), _is_sp2(mol.GetAtomWithIdx(k))
@@ -294,7 +295,7 @@ def _staggered_angles(mol: Chem.Mol, j: int, k: int, ranks: list[int]) -> tuple[
     if sp2_j or sp2_k:
         if _twofold_end(mol, k, j, ranks) or _twofold_end(mol, j, k, ranks):
             return (0.0, 60.0, 120.0)
-        return (0.0, 120.0, 240.0)
+        return (0.0, 60.0, 120.0, 180.0, 240.0, 300.0)
     return (60.0, 180.0, 300.0)
 
 
