@@ -14,7 +14,6 @@ count for achiral molecules) of it.
 
 from __future__ import annotations
 
-import enum
 from dataclasses import dataclass, replace
 from typing import Sequence
 
@@ -22,6 +21,7 @@ import numpy as np
 from rdkit import Chem
 
 from chairbuild.build import StartingStructure, stereo_signature
+from chairbuild.choices import Choice
 from chairbuild.dedupe import StructureDeduplicator
 from chairbuild.result import Status
 
@@ -33,20 +33,15 @@ DEFAULT_RMSD_THRESHOLD = 0.25
 DEFAULT_ENERGY_TOLERANCE = 0.5
 
 
-class ForceFieldVariant(str, enum.Enum):
+class ForceFieldVariant(Choice):
     """MMFF variant used for minimisation."""
 
     MMFF94 = "MMFF94"
     MMFF94S = "MMFF94s"
 
     @classmethod
-    def parse(cls, text: str) -> "ForceFieldVariant":
-        from chairbuild.errors import OptionError
-
-        for member in cls:
-            if member.value.lower() == text.strip().lower():
-                return member
-        raise OptionError(f"unknown force field {text!r}; choose from: mmff94, mmff94s")
+    def describe(cls) -> str:
+        return "force field"
 
 
 @dataclass(frozen=True)

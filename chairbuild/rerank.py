@@ -20,7 +20,6 @@ with the rotational symmetry number of each conformer gives H and G
 
 from __future__ import annotations
 
-import enum
 from dataclasses import dataclass, field, replace
 from typing import Sequence
 
@@ -28,6 +27,7 @@ import numpy as np
 from rdkit import Chem
 
 from chairbuild.build import stereo_signature
+from chairbuild.choices import Choice
 from chairbuild.minimise import ForceFieldVariant, MinimisedStructure, deduplicate
 from chairbuild.result import Status
 
@@ -37,23 +37,15 @@ __all__ = ["Level", "RankedStructure", "rerank_structures", "REOPTIMISE_MARGIN_K
 REOPTIMISE_MARGIN_KJ = 10.0
 
 
-class Level(str, enum.Enum):
+class Level(Choice):
     """Energy level of the final ranking."""
 
     MMFF94 = "mmff94"
     GFN2 = "gfn2"
 
     @classmethod
-    def parse(cls, text: "str | Level") -> "Level":
-        from chairbuild.errors import OptionError
-
-        if isinstance(text, Level):
-            return text
-        key = str(text).strip().lower()
-        for member in cls:
-            if member.value == key:
-                return member
-        raise OptionError(f"unknown level {text!r}; choose from: {', '.join(m.value for m in cls)}")
+    def describe(cls) -> str:
+        return "level"
 
 
 @dataclass(frozen=True)

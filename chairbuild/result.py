@@ -21,6 +21,7 @@ from typing import Any, Mapping
 
 import numpy as np
 
+from chairbuild.choices import Choice
 from chairbuild.constants import KJ_TO_KCAL
 
 __all__ = [
@@ -76,23 +77,19 @@ class Position(str, enum.Enum):
     IN_PLANE = "in-plane"
 
 
-class EnergyUnit(str, enum.Enum):
+class EnergyUnit(Choice):
     """Energy unit of reported values."""
 
     KJ = "kJ/mol"
     KCAL = "kcal/mol"
 
     @classmethod
-    def parse(cls, text: str) -> "EnergyUnit":
-        """Accept ``kj``, ``kJ/mol``, ``kcal``, ``kcal/mol`` (any case)."""
-        from chairbuild.errors import OptionError
+    def describe(cls) -> str:
+        return "energy unit"
 
-        key = text.strip().lower()
-        if key in ("kj", "kj/mol"):
-            return cls.KJ
-        if key in ("kcal", "kcal/mol"):
-            return cls.KCAL
-        raise OptionError(f"unknown energy unit {text!r}; use 'kj' or 'kcal'")
+    @classmethod
+    def aliases(cls) -> dict[str, "EnergyUnit"]:
+        return {"kj": cls.KJ, "kcal": cls.KCAL}
 
     def from_kj(self, value: float) -> float:
         """Convert ``value`` in kJ/mol to this unit."""

@@ -264,7 +264,6 @@ def is_linear(
 # --------------------------------------------------------------------------- frequencies
 def _rigid_body_vectors(m: np.ndarray, x: np.ndarray, linear_tolerance: float) -> np.ndarray:
     """Orthonormal mass-weighted translation and rotation vectors, shape (3n, k)."""
-    n = m.size
     r = x - m @ x / m.sum()
     sqrt_m = np.sqrt(m)
     vectors = []

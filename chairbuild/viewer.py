@@ -31,12 +31,12 @@ ring atoms two positions away, on the same face of the ring) are drawn as pink s
 from __future__ import annotations
 
 import enum
-import json
 from dataclasses import dataclass, replace
 from typing import Any, Sequence
 
 import numpy as np
 
+from chairbuild.choices import Choice
 from chairbuild.errors import InputError, OptionError
 from chairbuild.result import ConformerRecord, Ensemble, Position, RingShape
 
@@ -65,7 +65,7 @@ __all__ = [
 ]
 
 
-class HydrogenMode(str, enum.Enum):
+class HydrogenMode(Choice):
     """Which hydrogens the scene draws."""
 
     RELEVANT = "relevant"
@@ -73,16 +73,8 @@ class HydrogenMode(str, enum.Enum):
     NONE = "none"
 
     @classmethod
-    def parse(cls, value: "HydrogenMode | str") -> "HydrogenMode":
-        """Accept a member or its value (any case); raise OptionError otherwise."""
-        if isinstance(value, cls):
-            return value
-        try:
-            return cls(str(value).strip().lower())
-        except ValueError:
-            raise OptionError(
-                f"show_hydrogens must be one of {', '.join(m.value for m in cls)}, got {value!r}"
-            ) from None
+    def describe(cls) -> str:
+        return "hydrogen mode"
 
 
 class LabelKind(str, enum.Enum):

@@ -14,7 +14,6 @@ import shutil
 import subprocess
 from pathlib import Path
 
-import numpy as np
 import pytest
 
 pytestmark = pytest.mark.browser

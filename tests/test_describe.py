@@ -14,8 +14,7 @@ def ideal_chair(bond: float, angle_deg: float) -> np.ndarray:
 
     Atoms alternate ±h about the mean plane on a circle of radius r; bond and angle fix r and h.
     """
-    theta = np.radians(angle_deg)
-    # in-plane neighbour distance d = r*sqrt(3) (60° apart), 1-3 distance = 2*r*sin(60°)*... solve numerically
+    # solve numerically for the height h that gives the requested ring angle
     from scipy.optimize import brentq
 
     def residual(h):
