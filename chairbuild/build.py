@@ -324,7 +324,7 @@ class _CoreProblem:
         best, best_dev = None, np.inf
         for guess in guesses[:_MAX_GUESSES]:
             fit = least_squares(
-                self.residuals, guess.ravel(), jac=self.jacobian, args=(targets,), method="lm", xtol=1e-6, max_nfev=400
+                self.residuals, guess.ravel(), jac=self.jacobian, args=(targets,), method="lm", xtol=1e-4, ftol=1e-4, max_nfev=200
             )
             p = fit.x.reshape(-1, 3)
             tors = _dihedral_rad(p[self.quads])
