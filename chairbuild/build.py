@@ -756,7 +756,8 @@ def build_starting_structures(
 def rotamer_variations(
     mol: Chem.Mol, analysis: RingAnalysis, seeds: Sequence[np.ndarray], origin: str = "refine"
 ) -> list[StartingStructure]:
-    """New starts from minimised ``seeds``: every rotor set, one at a time, to each of its other values.
+    """New starts from minimised ``seeds``: each rotor, and each pair of rotors on consecutive bonds,
+    set to each of its other values.
 
     Used after the rotamer cap bit: a hill-climbing pass over rotor settings around the
     lowest minima finds the cooperative arrangements (hydrogen-bond chains of polyols)
@@ -766,16 +767,27 @@ def rotamer_variations(
     work.RemoveAllConformers()
     work.AddConformer(Chem.Conformer(mol.GetNumAtoms()), assignId=True)
     conf = work.GetConformer()
+    rotors = list(analysis.rotors)
+    # single rotors, and pairs of rotors on consecutive bonds of one branch (C-C-O-H of CH2OH), which
+    # often have to turn together
+    moves: list[tuple[int, ...]] = [(r,) for r in range(len(rotors))]
+    for a in range(len(rotors)):
+        for b in range(len(rotors)):
+            if a != b and rotors[a].atoms[2] == rotors[b].atoms[1] and rotors[a].atoms[1] != rotors[b].atoms[2]:
+                moves.append((a, b))
     out = []
     for k, xyz in enumerate(seeds):
-        for r_idx, rotor in enumerate(analysis.rotors):
-            current = rdMolTransforms.GetDihedralDeg(_set_positions(conf, xyz), *rotor.atoms)
-            for value in rotor.angles:
-                if abs(((value - current + 180.0) % 360.0) - 180.0) < 40.0:
-                    continue  # already there
+        _set_positions(conf, xyz)
+        current = [rdMolTransforms.GetDihedralDeg(conf, *r.atoms) for r in rotors]
+        for move in moves:
+            for values in itertools.product(*(rotors[r].angles for r in move)):
+                if any(abs(((v - current[r] + 180.0) % 360.0) - 180.0) < 40.0 for r, v in zip(move, values)):
+                    continue  # a rotor already sits there: covered by a smaller move
                 _set_positions(conf, xyz)
-                _set_rotamer(conf, rotor.atoms, value)
-                out.append(StartingStructure(coords=conf.GetPositions(), origin=f"{origin}:seed{k}:rotor{r_idx}={value:.0f}"))
+                for r, v in zip(move, values):
+                    _set_rotamer(conf, rotors[r].atoms, v)
+                label = ",".join(f"rotor{r}={v:.0f}" for r, v in zip(move, values))
+                out.append(StartingStructure(coords=conf.GetPositions(), origin=f"{origin}:seed{k}:{label}"))
     return out
 
 
