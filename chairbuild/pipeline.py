@@ -16,6 +16,7 @@ import numpy as np
 from chairbuild.constants import T_DEFAULT
 from chairbuild.errors import OptionError, StereoError
 from chairbuild.minimise import ForceFieldVariant
+from chairbuild.result import Status
 
 __all__ = ["AnalysisOptions", "analyze", "analyze_all", "DEFAULT_WINDOW_KJ"]
 
@@ -190,7 +191,7 @@ def _run_one(prepared, opts: AnalysisOptions):
         n_min += n_extra
         distinct = deduplicate(mol, minimised, prepared.achiral)
     timings["minimise_s"] = time.perf_counter() - t1
-    rejected = [m for m in minimised if m.status.value != "ok"]
+    rejected = [m for m in minimised if m.status is not Status.OK]
     t2 = time.perf_counter()
     ranked, rejected_rerank, method_label, n_xtb = rerank_structures(
         mol,
