@@ -9,7 +9,7 @@ Per ring, with P_f the population of family f and P_ref that of the most populat
 
 * ΔG_f = −RT ln(P_f / P_ref) (≥ 0) and K_f = P_ref / P_f;
 * the additive estimate E_add(f) (A-values, gauche and syn-diaxial increments, from
-  :mod:`forcefields.additive`) is evaluated on the lowest member's geometry; both the
+  :mod:`chairbuild.forcefields.additive`) is evaluated on the lowest member's geometry; both the
   additive and the model value are reported relative to the chair family with the
   lowest additive estimate, and a family is flagged when they differ by more than
   :data:`DISAGREEMENT_KJ` (2.0 kJ/mol, about 0.5 kcal/mol, the spread between A-value

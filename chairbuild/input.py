@@ -24,7 +24,7 @@ from rdkit.Chem.EnumerateStereoisomers import EnumerateStereoisomers, StereoEnum
 
 from chairbuild.errors import InputError, StereoError
 
-__all__ = ["PreparedMolecule", "read_molecules", "mirror_smiles", "canonical_smiles"]
+__all__ = ["PreparedMolecule", "read_molecules", "mirror_smiles", "canonical_smiles", "charge_and_multiplicity"]
 
 _FILE_SUFFIXES = {".sdf", ".sd", ".mol", ".mdl"}
 #: At most this many diastereomers are enumerated with ``enumerate_stereo``.
@@ -52,6 +52,19 @@ class PreparedMolecule:
     smiles: str
     notes: tuple[str, ...]
     achiral: bool
+
+
+def charge_and_multiplicity(mol: Chem.Mol) -> tuple[int, int]:
+    """Total charge (sum of formal charges) and spin multiplicity 2S + 1 of ``mol``.
+
+    The number of unpaired electrons is RDKit's count of radical electrons (a SMILES
+    atom in brackets with fewer hydrogens than its valence, e.g. ``[CH2]``); every
+    unpaired electron is taken as high spin, so a monoradical is a doublet and a
+    diradical a triplet.
+    """
+    charge = sum(a.GetFormalCharge() for a in mol.GetAtoms())
+    unpaired = sum(a.GetNumRadicalElectrons() for a in mol.GetAtoms())
+    return int(charge), int(unpaired) + 1
 
 
 def canonical_smiles(mol: Chem.Mol) -> str:

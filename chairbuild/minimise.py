@@ -69,7 +69,7 @@ def minimise_starts(
     """Minimise every start with MMFF in OpenMM; return the structures and the minimisation count."""
     from tqdm import tqdm
 
-    from forcefields.mmff import MMFFModel
+    from chairbuild.forcefields.mmff import MMFFModel
 
     model = MMFFModel(mol, variant=variant.value, threads=threads)
     out: list[MinimisedStructure] = []

@@ -89,7 +89,7 @@ class AnalysisOptions:
         if self.solvent is not None:
             if not uses_xtb:
                 raise OptionError("a solvent needs the GFN2-xTB level: add method='gfn2' or rerank='gfn2'")
-            from forcefields.xtb import available_solvents
+            from chairbuild.forcefields.xtb import available_solvents
 
             valid = available_solvents(self.solvation_model, include_aliases=True)
             if self.solvent.strip().lower() not in [v.lower() for v in valid]:
@@ -269,6 +269,7 @@ def _assemble_result(prepared, analysis, ranked, rejected, opts, method_label, b
 
     from chairbuild.describe import describe_conformer
     from chairbuild.families import build_families, family_keys
+    from chairbuild.input import charge_and_multiplicity
     from chairbuild.result import ConformerRecord, Ensemble
     from chairbuild.thermo import boltzmann_populations
 
@@ -351,8 +352,11 @@ def _assemble_result(prepared, analysis, ranked, rejected, opts, method_label, b
         "counts": counts,
         "versions": _versions(),
     }
+    charge, multiplicity = charge_and_multiplicity(mol)
     return Ensemble(
         name=prepared.name,
+        charge=charge,
+        multiplicity=multiplicity,
         smiles=prepared.smiles,
         mol_block=Chem.MolToMolBlock(mol, includeStereo=True),
         symbols=symbols,
@@ -370,7 +374,7 @@ def _assemble_result(prepared, analysis, ranked, rejected, opts, method_label, b
 
 
 def _additive_scorer(mol, analysis):
-    from forcefields.additive import AdditiveModel
+    from chairbuild.forcefields.additive import AdditiveModel
 
     models = {r.index: AdditiveModel(mol, [r.atoms]) for r in analysis.rings}
 

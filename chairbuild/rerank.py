@@ -151,7 +151,7 @@ def rerank_structures(
         thermo_model = None
     if free_energy:
         if thermo_model is None:
-            from forcefields.mmff import MMFFModel
+            from chairbuild.forcefields.mmff import MMFFModel
 
             thermo_model = MMFFModel(mol, variant=forcefield.value, threads=threads)
         ranked = _with_free_energies(mol, ranked, thermo_model, temperature, progress)
@@ -199,7 +199,7 @@ _WORKER: dict = {}
 
 
 def _worker_init(mol_block: str, solvent, solvation_model: str, label: str) -> None:
-    from forcefields.xtb import XTBModel
+    from chairbuild.forcefields.xtb import XTBModel
 
     mol = Chem.MolFromMolBlock(mol_block, removeHs=False)
     _WORKER["model"] = XTBModel(mol, solvent=solvent, solvation_model=solvation_model, threads=1, label=label)
@@ -235,7 +235,7 @@ class _XTBRunner:
     def __init__(self, mol: Chem.Mol, solvent, solvation_model: str, label: str, threads: int | None):
         import os
 
-        from forcefields.xtb import XTBModel
+        from chairbuild.forcefields.xtb import XTBModel
 
         self.mol_block = Chem.MolToMolBlock(mol)
         self.args = (self.mol_block, solvent, solvation_model, label)

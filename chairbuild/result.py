@@ -394,6 +394,10 @@ class Ensemble:
         Warnings and notes for the user (cap reached, enantiomer choice, ...).
     provenance : Mapping[str, Any]
         Versions, options, counts and timings.
+    charge : int
+        Total charge (sum of formal charges) of the molecule.
+    multiplicity : int
+        Spin multiplicity 2S + 1 (1 closed shell, 2 a radical).
     """
 
     name: str
@@ -410,6 +414,8 @@ class Ensemble:
     families: tuple[FamilyRecord, ...] = ()
     notes: tuple[str, ...] = ()
     provenance: Mapping[str, Any] = field(default_factory=dict)
+    charge: int = 0
+    multiplicity: int = 1
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "provenance", MappingProxyType(dict(self.provenance)))
@@ -452,6 +458,8 @@ class Ensemble:
             "schema": SCHEMA_VERSION,
             "name": self.name,
             "smiles": self.smiles,
+            "charge": self.charge,
+            "multiplicity": self.multiplicity,
             "method": self.method,
             "ranking": self.ranking,
             "temperature_K": self.temperature,

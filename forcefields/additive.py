@@ -91,7 +91,7 @@ from chairbuild.describe import describe_ring, mean_plane_normal, substituent_po
 from chairbuild.errors import ForceFieldError, InputError
 from chairbuild.result import AdditiveTerm, Position, RingShape
 from chairbuild.rings import RingAnalysis
-from forcefields.base import EnergyModel
+from chairbuild.forcefields.base import EnergyModel
 
 __all__ = [
     "IncrementKind",

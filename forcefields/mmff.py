@@ -2,8 +2,8 @@
 
 :func:`create_system` turns an RDKit molecule (explicit hydrogens) into an OpenMM
 ``System`` holding the seven MMFF terms, each in its own force group
-(:data:`forcefields.mmff_terms.TERM_GROUPS`). :class:`MMFFModel` wraps one such System
-and one CPU ``Context`` per molecule and implements :class:`forcefields.base.EnergyModel`
+(:data:`chairbuild.forcefields.mmff_terms.TERM_GROUPS`). :class:`MMFFModel` wraps one such System
+and one CPU ``Context`` per molecule and implements :class:`chairbuild.forcefields.base.EnergyModel`
 (coordinates in Å, energies in kJ/mol, gradients in kJ mol^-1 Å^-1).
 
 Minimisation (:meth:`MMFFModel.minimize`) is designed around OpenMM's large per-call
@@ -45,8 +45,8 @@ import openmm
 
 from chairbuild.constants import ANGSTROM_TO_NM
 from chairbuild.errors import ForceFieldError, OptionError
-from forcefields.base import EnergyModel
-from forcefields.mmff_terms import (
+from chairbuild.forcefields.base import EnergyModel
+from chairbuild.forcefields.mmff_terms import (
     RESTRAINT_GROUP,
     TERM_GROUPS,
     MMFFParameters,
@@ -146,7 +146,7 @@ def create_system(
     -------
     openmm.System
         Particles with the atoms' masses and forces in groups
-        :data:`forcefields.mmff_terms.TERM_GROUPS` (bond 0 ... electrostatic 6; a term
+        :data:`chairbuild.forcefields.mmff_terms.TERM_GROUPS` (bond 0 ... electrostatic 6; a term
         the molecule lacks has no force); OpenMM units (nm, kJ/mol).
 
     Raises

@@ -648,7 +648,7 @@ def restraint_force(p: MMFFParameters, n_copies: int = 1) -> openmm.CustomTorsio
     ``E = k_restraint * on * max(0, |d| - w_restraint)^2`` with ``d`` the deviation of
     the dihedral from ``theta0`` wrapped into [-pi, pi) (rad). ``k_restraint``
     (kJ mol^-1 rad^-2) and ``w_restraint`` (rad) are global parameters; ``on`` (0 or 1)
-    and ``theta0`` are per-slot and are set by :class:`forcefields.mmff.MMFFModel`
+    and ``theta0`` are per-slot and are set by :class:`chairbuild.forcefields.mmff.MMFFModel`
     without rebuilding the Context. The slots follow :attr:`MMFFParameters.dihedrals`,
     copy after copy.
     """
@@ -732,7 +732,7 @@ class Preconditioner:
     ``b_t`` is the Cartesian gradient of bond length, angle or dihedral ``t`` (Wilson
     B-matrix row) and ``k_t`` its MMFF force constant (a torsion gets half the sum of its
     |V| plus a floor), so ``P`` is the Gauss-Newton Hessian of the MMFF valence terms in
-    kJ mol^-1 Å^-2: the preconditioner of the minimiser in :mod:`forcefields.mmff`.
+    kJ mol^-1 Å^-2: the preconditioner of the minimiser in :mod:`chairbuild.forcefields.mmff`.
     Dense matrices: meant for molecules of up to a few hundred atoms.
     """
 

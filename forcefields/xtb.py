@@ -71,7 +71,7 @@ from chairbuild.errors import (
     InputError,
     OptionError,
 )
-from forcefields.base import EnergyModel
+from chairbuild.forcefields.base import EnergyModel
 
 __all__ = [
     "SolvationModel",
@@ -137,7 +137,7 @@ def _solvent_table() -> dict[SolvationModel, dict[str, str]]:
     """Read ``data/xtb_solvents.txt``: model -> {accepted name: parameter set}."""
     from importlib import resources
 
-    text = resources.files("forcefields").joinpath("data/xtb_solvents.txt").read_text()
+    text = resources.files("chairbuild.forcefields").joinpath("data/xtb_solvents.txt").read_text()
     table: dict[SolvationModel, dict[str, str]] = {m: {} for m in SolvationModel}
     for line in text.splitlines():
         line = line.split("#", 1)[0].strip()

@@ -39,7 +39,7 @@ class AValueCase:
 
 
 def load_cases() -> list[AValueCase]:
-    from forcefields.additive import load_increments
+    from chairbuild.forcefields.additive import load_increments
 
     table = {row.key: row for row in load_increments().rows}
     cases = []

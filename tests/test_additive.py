@@ -1,4 +1,4 @@
-"""Tests of the additive increment estimate (forcefields.additive) and its data table.
+"""Tests of the additive increment estimate (chairbuild.forcefields.additive) and its data table.
 
 Every check value names its source beside it. The increments used in the hand
 calculations (kcal/mol, converted with 1 kcal = 4.184 kJ, the thermochemical calorie):
@@ -27,7 +27,7 @@ from chairbuild.describe import describe_ring, substituent_position
 from chairbuild.errors import ForceFieldError, InputError
 from chairbuild.input import read_molecules
 from chairbuild.rings import analyse_rings
-from forcefields.additive import (
+from chairbuild.forcefields.additive import (
     INCREMENTS_PATH,
     AdditiveModel,
     Bound,
@@ -36,7 +36,7 @@ from forcefields.additive import (
     match_group,
     read_increments,
 )
-from forcefields.base import EnergyModel
+from chairbuild.forcefields.base import EnergyModel
 
 KCAL = 4.184  # kJ per thermochemical kcal (definition of the calorie)
 A_CH3 = 1.74  # Booth & Everett 1980, P

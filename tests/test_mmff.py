@@ -1,4 +1,4 @@
-"""Tests of the MMFF94/MMFF94s bridge to OpenMM (:mod:`forcefields.mmff`).
+"""Tests of the MMFF94/MMFF94s bridge to OpenMM (:mod:`chairbuild.forcefields.mmff`).
 
 External reference throughout: RDKit's own MMFF implementation
 (``rdForceFieldHelpers.MMFFGetMoleculeProperties`` + ``MMFFGetMoleculeForceField``,
@@ -22,8 +22,8 @@ from rdkit.Chem import AllChem, rdForceFieldHelpers, rdMolTransforms
 
 from chairbuild.constants import KJ_TO_KCAL
 from chairbuild.errors import ForceFieldError, OptionError
-from forcefields.mmff import DEFAULT_TOLERANCE, MMFFModel, create_system
-from forcefields.mmff_terms import TERM_GROUPS
+from chairbuild.forcefields.mmff import DEFAULT_TOLERANCE, MMFFModel, create_system
+from chairbuild.forcefields.mmff_terms import TERM_GROUPS
 
 DATA = Path(__file__).parent / "data"
 EMBED_SEED = 0xC0FFEE

@@ -1,4 +1,4 @@
-"""Tests of the GFN2-xTB energy model (forcefields.xtb) through tblite.
+"""Tests of the GFN2-xTB energy model (chairbuild.forcefields.xtb) through tblite.
 
 Check values and their sources are named beside each check. "Common practice, no
 source" marks checks of internal consistency (finite differences, symmetry).
@@ -24,8 +24,8 @@ from chairbuild.errors import (  # noqa: E402
     OptionError,
 )
 from chairbuild.thermo import atomic_masses, harmonic_frequencies  # noqa: E402
-from forcefields.base import EnergyModel  # noqa: E402
-from forcefields.xtb import (  # noqa: E402
+from chairbuild.forcefields.base import EnergyModel  # noqa: E402
+from chairbuild.forcefields.xtb import (  # noqa: E402
     SolvationModel,
     XTBModel,
     XTBOptimizationResult,

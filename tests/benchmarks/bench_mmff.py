@@ -3,7 +3,7 @@
 For three molecules of about 20, 40 and 80 atoms (hydrogens included) the same 200
 ETKDG conformers (fixed seed) are minimised side by side in one run:
 
-* ours: ``forcefields.mmff.MMFFModel(mol, threads=T).minimize(coords)`` (model
+* ours: ``chairbuild.forcefields.mmff.MMFFModel(mol, threads=T).minimize(coords)`` (model
   construction included), to its default RMS-gradient tolerance;
 * RDKit: ``AllChem.MMFFOptimizeMoleculeConfs(mol, numThreads=T, maxIters=M)``.
 
@@ -45,7 +45,7 @@ def _conformers(smiles: str, n: int):
 
 def _run_ours(mol, threads: int) -> tuple[float, np.ndarray, float]:
     from chairbuild.constants import KJ_TO_KCAL
-    from forcefields.mmff import MMFFModel
+    from chairbuild.forcefields.mmff import MMFFModel
 
     starts = np.array([c.GetPositions() for c in mol.GetConformers()])
     t0 = time.perf_counter()
