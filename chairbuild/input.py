@@ -113,8 +113,29 @@ def _read_file(path: Path, record: int | None) -> tuple[Chem.Mol, str]:
     raise InputError(f"{str(path)!r} has {count} record(s); record {index} does not exist")
 
 
-def _parse(source: str, record: int | None) -> tuple[Chem.Mol, str]:
-    text = source.strip()
+def _from_rdkit(source: Chem.Mol) -> tuple[Chem.Mol, str]:
+    """A copy of a caller's RDKit molecule (stereo from 3D coordinates when it has them)."""
+    mol = Chem.Mol(source)
+    if mol.GetNumAtoms() == 0:
+        raise InputError("the RDKit molecule has no atoms")
+    try:
+        Chem.SanitizeMol(mol)
+    except Chem.rdchem.MolSanitizeException as exc:
+        raise InputError(f"the RDKit molecule does not sanitize: {exc}") from None
+    if mol.GetNumConformers() and mol.GetConformer().Is3D():
+        Chem.AssignStereochemistryFrom3D(mol)
+    name = mol.GetProp("_Name").strip() if mol.HasProp("_Name") else ""
+    return mol, name or canonical_smiles(mol)
+
+
+def _parse(source: "str | Chem.Mol", record: int | None) -> tuple[Chem.Mol, str]:
+    if isinstance(source, Chem.Mol):
+        if record is not None:
+            raise InputError("record applies to SDF/MOL files only, not to an RDKit molecule")
+        return _from_rdkit(source)
+    if not isinstance(source, (str, Path)):
+        raise InputError(f"expected a SMILES string, a file path or an RDKit Mol, got {type(source).__name__}")
+    text = str(source).strip()
     if not text:
         raise InputError("empty input: give a SMILES string or an SDF/MOL file")
     path = Path(text)
@@ -167,7 +188,7 @@ def _with_hydrogens(mol: Chem.Mol) -> Chem.Mol:
 
 
 def read_molecules(
-    source: str,
+    source: "str | Path | Chem.Mol",
     record: int | None = None,
     enumerate_stereo: bool = False,
     name: str | None = None,
@@ -176,8 +197,9 @@ def read_molecules(
 
     Parameters
     ----------
-    source : str
-        SMILES, or the path of an SDF/MOL file.
+    source : str, pathlib.Path or rdkit.Chem.Mol
+        SMILES, the path of an SDF/MOL file, or an RDKit molecule (with or without
+        hydrogens and 3D coordinates; stereo is taken from 3D coordinates when present).
     record : int, optional
         1-based record number in a multi-record SDF (default: the first).
     enumerate_stereo : bool

@@ -116,13 +116,13 @@ def _options(kwargs: dict[str, Any]) -> AnalysisOptions:
     return AnalysisOptions(**kwargs).validate()
 
 
-def analyze(molecule: str, *, name: str | None = None, record: int | None = None, **options: Any):
+def analyze(molecule, *, name: str | None = None, record: int | None = None, **options: Any):
     """Analyse one molecule and return its conformer ensemble.
 
     Parameters
     ----------
-    molecule : str
-        SMILES or the path of an SDF/MOL file.
+    molecule : str, pathlib.Path or rdkit.Chem.Mol
+        SMILES, the path of an SDF/MOL file, or an RDKit molecule.
     name : str, optional
     record : int, optional
         1-based record of a multi-record SDF.
@@ -142,7 +142,7 @@ def analyze(molecule: str, *, name: str | None = None, record: int | None = None
 
 
 def analyze_all(
-    molecule: str,
+    molecule,
     *,
     name: str | None = None,
     record: int | None = None,
