@@ -2,6 +2,9 @@
 
 Bad input or options print one message naming the problem and exit with code 2; no
 traceback. Output files are checked before any work starts and written atomically.
+Exit codes (:data:`EXIT_CODES`, also in ``--help``): 0 done, 1 a computation failed,
+2 bad input or option, 130 interrupted (Ctrl-C), 141 the reader of the output closed
+the pipe (``| head``). Messages name options as flags (:mod:`chairbuild.optnames`).
 """
 
 from __future__ import annotations
@@ -14,7 +17,25 @@ from chairbuild.errors import ChairbuildError
 
 __all__ = ["main", "build_parser"]
 
+EXIT_OK = 0
+EXIT_FAILED = 1
 EXIT_USAGE = 2
+EXIT_INTERRUPTED = 130
+EXIT_PIPE_CLOSED = 141
+
+#: Exit code → meaning, printed at the end of ``--help``.
+EXIT_CODES = {
+    EXIT_OK: "done",
+    EXIT_FAILED: "a computation failed (e.g. an SCF or minimisation that did not converge)",
+    EXIT_USAGE: "bad input or option (the message names it; nothing was computed or written)",
+    EXIT_INTERRUPTED: "interrupted (Ctrl-C); files already written stay complete",
+    EXIT_PIPE_CLOSED: "the reader closed the output pipe (e.g. | head)",
+}
+
+
+def _epilog() -> str:
+    codes = "\n".join(f"  {code:>3}  {meaning}" for code, meaning in EXIT_CODES.items())
+    return "exit codes:\n" + codes
 
 
 class _Parser(argparse.ArgumentParser):
@@ -68,20 +89,32 @@ def _add_analysis_options(p: argparse.ArgumentParser) -> None:
         "--max-rotamers", type=_positive_int, default=81, help="cap on rotamer combinations per ring state (default 81)"
     )
     p.add_argument("--threads", type=_positive_int, default=None, help="CPU threads for the energy engines")
-    p.add_argument("--quiet", action="store_true", help="no progress bars")
+    p.add_argument("--quiet", action="store_true", help="no progress bars and no 'wrote FILE' lines (errors still print)")
 
 
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser (exposed for the documentation and tests)."""
+    from chairbuild import __version__
+
     parser = _Parser(
         prog="chairbuild",
         description="Build every chair and twist-boat of a molecule's six-membered rings, minimise them, "
         "and report populations, axial/equatorial positions and the additive estimate.",
+        epilog=_epilog(),
+        formatter_class=argparse.RawDescriptionHelpFormatter,
     )
+    parser.add_argument("--version", action="version", version=f"chairbuild {__version__}")
     sub = parser.add_subparsers(dest="command", required=True, parser_class=_Parser)
-    an = sub.add_parser("analyze", help="analyse one molecule (SMILES or SDF/MOL file)")
-    an.add_argument("molecule", help="SMILES string, or path of an SDF/MOL file")
-    an.add_argument("--record", type=_positive_int, default=None, help="1-based record of a multi-record SDF")
+    an = sub.add_parser(
+        "analyze",
+        help="analyse one molecule (SMILES, SDF/MOL file, or .smi/.txt file of SMILES lines)",
+        epilog=_epilog() + "\n\natom numbers in the table are 0-based (as in the JSON and RDKit)",
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    an.add_argument("molecule", help="SMILES string, path of an SDF/MOL file, or a .smi/.txt file (one SMILES per line)")
+    an.add_argument(
+        "--record", type=_positive_int, default=None, help="1-based record of a multi-record SDF or line of a .smi/.txt file"
+    )
     an.add_argument("--name", default=None, help="name used in the output")
     an.add_argument("--enumerate-stereo", action="store_true", help="analyse every diastereomer when stereo is undefined")
     an.add_argument("--json", action="store_true", help="print the JSON result to stdout instead of the table")
@@ -94,10 +127,13 @@ def build_parser() -> argparse.ArgumentParser:
         help="write results; format by extension (.sdf .xyz .csv .json) or a directory (one XYZ per conformer); repeatable",
     )
     an.add_argument("--report", metavar="PATH", default=None, help="write a self-contained HTML report (tables, plots, 3D viewer)")
+    an.add_argument(
+        "--overwrite", action="store_true", help="replace the rank_*.xyz files of an earlier run in an -o directory"
+    )
     _add_analysis_options(an)
     demo = sub.add_parser("demo", help="run the built-in demonstration scenario")
     demo.add_argument("--output-dir", default="demo-output", help="where the demo writes its files (default demo-output)")
-    demo.add_argument("--quiet", action="store_true", help="no progress bars")
+    demo.add_argument("--quiet", action="store_true", help="no progress bars and no 'wrote FILE' lines")
     return parser
 
 
@@ -123,6 +159,12 @@ def _analysis_kwargs(args: argparse.Namespace) -> dict:
     return kwargs
 
 
+def _say(args: argparse.Namespace, text: str) -> None:
+    """A progress line on stderr ("wrote FILE"), silenced by --quiet."""
+    if not args.quiet:
+        print(text, file=sys.stderr)
+
+
 def _run_analyze(args: argparse.Namespace) -> int:
     import json
 
@@ -132,7 +174,7 @@ def _run_analyze(args: argparse.Namespace) -> int:
 
     unit = EnergyUnit.parse(args.units)
     for target in args.output:
-        check_target(target)
+        check_target(target, args.overwrite)
     if args.report:
         from chairbuild.report import check_report_path
 
@@ -145,35 +187,57 @@ def _run_analyze(args: argparse.Namespace) -> int:
         **_analysis_kwargs(args),
     )
     for target in args.output:
-        for path in write_many(ensembles, target, unit):
-            print(f"wrote {path}", file=sys.stderr)
+        for path in write_many(ensembles, target, unit, args.overwrite):
+            _say(args, f"wrote {path}")
     if args.report:
         from chairbuild.report import write_report
 
-        print(f"wrote {write_report(ensembles, args.report)}", file=sys.stderr)
+        _say(args, f"wrote {write_report(ensembles, args.report)}")
     if args.json:
         payload = ensembles[0].to_dict(unit) if len(ensembles) == 1 else [e.to_dict(unit) for e in ensembles]
         print(json.dumps(payload, indent=2))
     else:
         print("\n\n".join(format_table(e, unit) for e in ensembles))
-    return 0
+    sys.stdout.flush()
+    return EXIT_OK
+
+
+def _silence_stdout() -> None:
+    """After a closed pipe: point stdout at /dev/null so that the interpreter's final flush is quiet."""
+    import os
+
+    try:
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+    except (OSError, ValueError):
+        pass
 
 
 def main(argv: Sequence[str] | None = None) -> int:
-    """Entry point of the ``chairbuild`` command; returns the exit code."""
-    parser = build_parser()
-    args = parser.parse_args(argv)
-    try:
-        if args.command == "analyze":
-            return _run_analyze(args)
-        if args.command == "demo":
-            from chairbuild.demo import run_demo
+    """Entry point of the ``chairbuild`` command; returns the exit code (see :data:`EXIT_CODES`)."""
+    from chairbuild.errors import ConvergenceError
+    from chairbuild.optnames import command_line
 
-            return run_demo(args.output_dir, progress=not args.quiet and sys.stderr.isatty())
+    try:
+        parser = build_parser()
+        args = parser.parse_args(argv)
+        with command_line():
+            if args.command == "analyze":
+                return _run_analyze(args)
+            if args.command == "demo":
+                from chairbuild.demo import run_demo
+
+                return run_demo(args.output_dir, progress=not args.quiet and sys.stderr.isatty(), quiet=args.quiet)
+    except ConvergenceError as exc:
+        print(f"chairbuild: computation failed: {exc}", file=sys.stderr)
+        return EXIT_FAILED
     except ChairbuildError as exc:
         print(f"chairbuild: error: {exc}", file=sys.stderr)
         return EXIT_USAGE
     except KeyboardInterrupt:
         print("chairbuild: interrupted", file=sys.stderr)
-        return 130
+        return EXIT_INTERRUPTED
+    except BrokenPipeError:
+        _silence_stdout()
+        return EXIT_PIPE_CLOSED
     return EXIT_USAGE

@@ -20,8 +20,12 @@ DEMO_MOLECULES: tuple[tuple[str, str], ...] = (
 )
 
 
-def run_demo(output_dir: str = "demo-output", progress: bool = False) -> int:
-    """Analyse the demo molecules, print their tables and write SDF/JSON/XYZ files."""
+def run_demo(output_dir: str = "demo-output", progress: bool = False, quiet: bool = False) -> int:
+    """Analyse the demo molecules, print their tables and write SDF/JSON/XYZ files.
+
+    The demo replaces its own earlier files in ``output_dir``; ``quiet`` drops the
+    "wrote FILE" lines on stderr.
+    """
     from chairbuild.output import format_table, write
     from chairbuild.pipeline import analyze
 
@@ -44,8 +48,9 @@ def run_demo(output_dir: str = "demo-output", progress: bool = False) -> int:
         print()
         for suffix in (".sdf", ".json"):
             for path in write(ens, str(out / f"isomer_{k}{suffix}")):
-                print(f"wrote {path}", file=sys.stderr)
-        write(ens, str(out / f"isomer_{k}_xyz") + "/")
+                if not quiet:
+                    print(f"wrote {path}", file=sys.stderr)
+        write(ens, str(out / f"isomer_{k}_xyz") + "/", overwrite=True)
         counts = ens.provenance["counts"]
         timing = ens.provenance["timings"]["total_s"]
         print(

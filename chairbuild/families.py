@@ -55,7 +55,7 @@ def _label(key: str, symbols: Sequence[str], groups: dict[int, str]) -> str:
     if inner == "all-eq":
         return "chair, no axial substituent"
     atoms = [int(a) for a in inner[3:].split(",")]
-    named = ", ".join(f"{symbols[a]}{a} ({groups.get(a, symbols[a])})" for a in atoms)
+    named = ", ".join(f"{symbols[a]}{a}({groups.get(a, symbols[a])})" for a in atoms)  # SubstituentDescriptor.label
     return f"chair, axial: {named}"
 
 

@@ -19,14 +19,17 @@ from __future__ import annotations
 from dataclasses import dataclass
 from pathlib import Path
 
-from rdkit import Chem, RDLogger
+from rdkit import Chem, rdBase
 from rdkit.Chem.EnumerateStereoisomers import EnumerateStereoisomers, StereoEnumerationOptions
 
 from chairbuild.errors import InputError, StereoError
+from chairbuild.optnames import spell
 
 __all__ = ["PreparedMolecule", "read_molecules", "mirror_smiles", "canonical_smiles", "charge_and_multiplicity"]
 
 _FILE_SUFFIXES = {".sdf", ".sd", ".mol", ".mdl"}
+#: Text files of SMILES, one molecule per line (``SMILES [name]``; ``#`` starts a comment line).
+_SMILES_SUFFIXES = {".smi", ".smiles", ".txt"}
 #: At most this many diastereomers are enumerated with ``enumerate_stereo``.
 MAX_STEREOISOMERS = 32
 
@@ -89,12 +92,31 @@ def mirror_smiles(mol: Chem.Mol) -> str:
     return canonical_smiles(_mirror(mol))
 
 
-def _read_file(path: Path, record: int | None) -> tuple[Chem.Mol, str]:
+def _count_sdf_records(path: Path) -> int:
+    """Number of ``$$$$``-terminated records (a last record without the terminator counts too)."""
+    count, pending = 0, False
+    with path.open("r", encoding="utf-8", errors="replace") as fh:
+        for line in fh:
+            if line.startswith("$$$$"):
+                count, pending = count + 1, False
+            elif line.strip():
+                pending = True
+    return count + int(pending)
+
+
+def _several_records_note(path: Path, count: int, what: str) -> str:
+    return (
+        f"{str(path)!r} holds {count} {what}s; analysed {what} 1 only. Choose another with "
+        f"{spell('record')} N, or analyse all of them with the 'chairbuild batch' command"
+    )
+
+
+def _read_file(path: Path, record: int | None) -> tuple[Chem.Mol, str, list[str]]:
     if not path.is_file():
         raise InputError(f"cannot read {str(path)!r}: no such file")
     index = 1 if record is None else record
     if index < 1:
-        raise InputError(f"--record counts from 1, got {index}")
+        raise InputError(f"{spell('record')} counts from 1, got {index}")
     try:
         supplier = Chem.SDMolSupplier(str(path), removeHs=False, sanitize=True)
     except OSError as exc:
@@ -107,10 +129,57 @@ def _read_file(path: Path, record: int | None) -> tuple[Chem.Mol, str]:
             name = mol.GetProp("_Name") if mol.HasProp("_Name") and mol.GetProp("_Name").strip() else f"{path.stem}#{index}"
             if mol.GetNumConformers() and mol.GetConformer().Is3D():
                 Chem.AssignStereochemistryFrom3D(mol)
-            return mol, name
+            notes = []
+            if record is None:
+                total = _count_sdf_records(path)
+                if total > 1:
+                    notes.append(_several_records_note(path, total, "record"))
+            return mol, name, notes
     if count == 0:
         raise InputError(f"{str(path)!r} holds no molecule record")
     raise InputError(f"{str(path)!r} has {count} record(s); record {index} does not exist")
+
+
+def _smiles_lines(path: Path) -> list[tuple[str, str]]:
+    """``(smiles, name)`` of each molecule line of a SMILES file (blank and ``#`` lines skipped)."""
+    try:
+        text = path.read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError) as exc:
+        raise InputError(f"cannot read {str(path)!r}: {getattr(exc, 'strerror', None) or exc}") from None
+    entries = []
+    for line in text.splitlines():
+        fields = line.split(None, 1)
+        if not fields or fields[0].startswith("#"):
+            continue
+        if not entries and fields[0].lower() == "smiles":  # a header line
+            continue
+        entries.append((fields[0], fields[1].strip() if len(fields) > 1 else ""))
+    return entries
+
+
+def _read_smiles_file(path: Path, record: int | None) -> tuple[Chem.Mol, str, list[str]]:
+    if not path.is_file():
+        raise InputError(f"cannot read {str(path)!r}: no such file")
+    index = 1 if record is None else record
+    if index < 1:
+        raise InputError(f"{spell('record')} counts from 1, got {index}")
+    entries = _smiles_lines(path)
+    if not entries:
+        raise InputError(f"{str(path)!r} holds no SMILES line")
+    if index > len(entries):
+        raise InputError(f"{str(path)!r} has {len(entries)} SMILES line(s); line {index} does not exist")
+    smiles, name = entries[index - 1]
+    mol = _mol_from_smiles(smiles, where=f" (molecule {index} of {str(path)!r})")
+    notes = [_several_records_note(path, len(entries), "molecule")] if record is None and len(entries) > 1 else []
+    return mol, name or smiles, notes
+
+
+def _mol_from_smiles(text: str, where: str = "") -> Chem.Mol:
+    with rdBase.BlockLogs():  # RDKit's own parse messages; the caller's log settings are left as they are
+        mol = Chem.MolFromSmiles(text)
+    if mol is None:
+        raise InputError(f"invalid SMILES {text!r}{where}")
+    return mol
 
 
 def _from_rdkit(source: Chem.Mol) -> tuple[Chem.Mol, str]:
@@ -128,11 +197,12 @@ def _from_rdkit(source: Chem.Mol) -> tuple[Chem.Mol, str]:
     return mol, name or canonical_smiles(mol)
 
 
-def _parse(source: "str | Chem.Mol", record: int | None) -> tuple[Chem.Mol, str]:
+def _parse(source: "str | Chem.Mol", record: int | None) -> tuple[Chem.Mol, str, list[str]]:
     if isinstance(source, Chem.Mol):
         if record is not None:
-            raise InputError("record applies to SDF/MOL files only, not to an RDKit molecule")
-        return _from_rdkit(source)
+            raise InputError(f"{spell('record')} applies to SDF/MOL and SMILES files only, not to an RDKit molecule")
+        mol, name = _from_rdkit(source)
+        return mol, name, []
     if not isinstance(source, (str, Path)):
         raise InputError(f"expected a SMILES string, a file path or an RDKit Mol, got {type(source).__name__}")
     text = str(source).strip()
@@ -141,18 +211,13 @@ def _parse(source: "str | Chem.Mol", record: int | None) -> tuple[Chem.Mol, str]
     path = Path(text)
     if path.is_dir():
         raise InputError(f"{text!r} is a directory; give a SMILES string or an SDF/MOL file")
+    if path.suffix.lower() in _SMILES_SUFFIXES:
+        return _read_smiles_file(path, record)
     if path.suffix.lower() in _FILE_SUFFIXES or path.is_file():
         return _read_file(path, record)
     if record is not None:
-        raise InputError("--record applies to SDF/MOL files only")
-    RDLogger.DisableLog("rdApp.*")
-    try:
-        mol = Chem.MolFromSmiles(text)
-    finally:
-        RDLogger.EnableLog("rdApp.*")
-    if mol is None:
-        raise InputError(f"invalid SMILES {text!r}")
-    return mol, text
+        raise InputError(f"{spell('record')} applies to SDF/MOL and SMILES files only")
+    return _mol_from_smiles(text), text, []
 
 
 def _unassigned_stereo_atoms(mol: Chem.Mol) -> list[str]:
@@ -198,10 +263,12 @@ def read_molecules(
     Parameters
     ----------
     source : str, pathlib.Path or rdkit.Chem.Mol
-        SMILES, the path of an SDF/MOL file, or an RDKit molecule (with or without
-        hydrogens and 3D coordinates; stereo is taken from 3D coordinates when present).
+        SMILES, the path of an SDF/MOL file, of a ``.smi``/``.smiles``/``.txt`` file of
+        SMILES lines (``SMILES [name]``), or an RDKit molecule (with or without hydrogens
+        and 3D coordinates; stereo is taken from 3D coordinates when present).
     record : int, optional
-        1-based record number in a multi-record SDF (default: the first).
+        1-based record number in a multi-record SDF, or molecule line of a SMILES file
+        (default: the first, with a note when there are more).
     enumerate_stereo : bool
         Analyse every diastereomer when stereo is undefined.
     name : str, optional
@@ -216,9 +283,8 @@ def read_molecules(
     ------
     InputError, StereoError
     """
-    mol, default_name = _parse(source, record)
+    mol, default_name, notes = _parse(source, record)
     name = name or default_name
-    notes: list[str] = []
     mol, dropped = _largest_fragment(mol)
     if dropped:
         notes.append(
@@ -252,7 +318,7 @@ def read_molecules(
         elif not enumerate_stereo:
             raise StereoError(
                 f"undefined stereochemistry at {', '.join(unassigned)} decides between "
-                f"{len(classes)} diastereomers; specify it or use --enumerate-stereo"
+                f"{len(classes)} diastereomers; specify it or use {spell('enumerate_stereo', True)}"
             )
         else:
             if len(classes) > MAX_STEREOISOMERS:

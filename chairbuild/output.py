@@ -18,48 +18,42 @@ from pathlib import Path
 from typing import Callable, Sequence
 
 from chairbuild.errors import OptionError, OutputError
-from chairbuild.result import THERMO_ENERGY_KEYS, EnergyUnit, Ensemble
+from chairbuild.result import EnergyUnit, Ensemble
 
 __all__ = ["write", "format_table", "sdf_text", "xyz_text", "csv_text", "SUPPORTED_SUFFIXES"]
 
 
-def _energy_fields(ens: Ensemble, unit: EnergyUnit, rec) -> dict[str, str]:
-    u = unit.value
-    fields = {
-        "chairbuild_id": str(rec.id),
-        "chairbuild_status": rec.status.value,
-        f"relative_energy ({u})": f"{unit.from_kj(rec.relative_energy):.4f}",
-        "population": f"{rec.population:.6f}",
-        "degeneracy": str(rec.degeneracy),
-        "ranking_method": ens.method,
-        "temperature_K": f"{ens.temperature:.2f}",
-    }
-    for level, value in rec.energies.items():
-        fields[f"energy {level} ({u})"] = f"{unit.from_kj(value):.4f}"
-    for key, value in rec.thermo.items():
-        if key in THERMO_ENERGY_KEYS:
-            fields[f"{key} ({u})"] = f"{unit.from_kj(value):.4f}"
-        else:
-            fields[key] = f"{value:g}"
-    for k, ring in enumerate(rec.rings):
-        fields[f"ring{k}_shape"] = ring.shape.value
-        fields[f"ring{k}_cremer_pople"] = f"Q={ring.q_total:.4f} theta={ring.theta:.2f} phi={ring.phi:.2f}"
-        fields[f"ring{k}_torsions"] = " ".join(f"{t:.1f}" for t in ring.torsions)
-    fields["substituents"] = "; ".join(
-        f"{ens.symbols[s.atom]}{s.atom}({s.group}) on {ens.symbols[s.ring_atom]}{s.ring_atom}: {s.position.value}"
-        for s in rec.substituents
-    )
-    fields["families"] = " ".join(rec.families)
-    fields["converged"] = "yes" if rec.converged else "no"
-    fields["rms_gradient (kJ/mol/A)"] = f"{rec.rms_gradient:.4g}"
-    fields["origin"] = rec.origin
-    if rec.message:
-        fields["message"] = rec.message
+def _format(key: str, value) -> str:
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    if isinstance(value, float):
+        if key == "population":
+            return f"{value:.6f}"
+        if key.endswith("_deg") or key == "temperature_K":
+            return f"{value:.2f}"
+        if key.startswith("rms_gradient"):
+            return f"{value:.4g}"
+        return f"{value:.4f}"
+    return str(value)
+
+
+def record_fields(ens: Ensemble, unit: EnergyUnit, rec) -> dict[str, str]:
+    """The SD-file tags and CSV columns of one conformer: the ensemble's values, then the
+    conformer's (:func:`chairbuild.frames.conformer_properties`), formatted as text."""
+    from chairbuild.frames import conformer_properties, molecule_properties
+
+    mol_props = molecule_properties(ens)
+    fields = {k: _format(k, v) for k, v in mol_props.items() if k not in ("chairbuild_name", "smiles")}
+    fields.update({k: _format(k, v) for k, v in conformer_properties(ens, rec, unit).items()})
     return fields
 
 
 def sdf_text(ens: Ensemble, unit: EnergyUnit = EnergyUnit.KJ, include_rejected: bool = False) -> str:
-    """Multi-conformer SD file text."""
+    """Multi-conformer SD file text: one record per conformer, tags of :func:`record_fields`.
+
+    The molecule block carries the formal charges and radical centres, and the tags
+    ``total_charge`` and ``multiplicity`` state them for a quantum-chemistry input.
+    """
     from rdkit import Chem
 
     mol = ens.to_rdkit(include_rejected=include_rejected)
@@ -68,10 +62,12 @@ def sdf_text(ens: Ensemble, unit: EnergyUnit = EnergyUnit.KJ, include_rejected: 
     writer = Chem.SDWriter(buf)
     for rec, conf in zip(records, mol.GetConformers()):
         m = Chem.Mol(mol)
+        for key in list(m.GetPropNames()):
+            m.ClearProp(key)
         m.RemoveAllConformers()
         m.AddConformer(Chem.Conformer(conf), assignId=True)
         m.SetProp("_Name", f"{ens.name} conformer {rec.id}")
-        for key, value in _energy_fields(ens, unit, rec).items():
+        for key, value in record_fields(ens, unit, rec).items():
             m.SetProp(key, value)
         writer.write(m)
     writer.close()
@@ -87,40 +83,29 @@ def _xyz_block(ens: Ensemble, rec, comment: str) -> str:
 
 def _xyz_comment(ens: Ensemble, unit: EnergyUnit, rec) -> str:
     shapes = ",".join(r.shape.value for r in rec.rings)
+    rel = "G_rel" if ens.ranking == "free_energy" else "E_rel"
     return (
-        f"{ens.name} | conformer {rec.id} | E_rel={unit.from_kj(rec.relative_energy):.4f} {unit.value} "
+        f"{ens.name} | conformer {rec.id} | charge={ens.charge} multiplicity={ens.multiplicity} "
+        f"| {rel}={unit.from_kj(rec.relative_energy):.4f} {unit.value} "
         f"| population={rec.population:.6f} | method={ens.method} | T={ens.temperature:.2f} K | rings={shapes}"
     )
 
 
 def xyz_text(ens: Ensemble, unit: EnergyUnit = EnergyUnit.KJ) -> str:
-    """Multi-frame XYZ text, lowest energy first."""
+    """Multi-frame XYZ text, lowest energy first; total charge and multiplicity on each comment line."""
     return "".join(_xyz_block(ens, rec, _xyz_comment(ens, unit, rec)) for rec in ens.conformers)
 
 
 def csv_text(ens: Ensemble, unit: EnergyUnit = EnergyUnit.KJ) -> str:
-    """One row per conformer."""
+    """One row per conformer, the columns of :func:`record_fields` (the SD-file tags)."""
     buf = io.StringIO()
-    levels = sorted({k for rec in ens.conformers for k in rec.energies})
-    header = ["id", f"relative_energy_{unit.name.lower()}", "population", "degeneracy"]
-    header += [f"energy_{lvl}" for lvl in levels]
-    header += [f"ring{k}_shape" for k in range(len(ens.ring_atoms))]
-    header += [f"ring{k}_Q" for k in range(len(ens.ring_atoms))]
-    header += ["substituents", "families", "converged", "origin"]
-    writer = csv.writer(buf, lineterminator="\n")
-    writer.writerow(header)
-    for rec in ens.conformers:
-        row = [rec.id, f"{unit.from_kj(rec.relative_energy):.4f}", f"{rec.population:.6f}", rec.degeneracy]
-        row += [f"{unit.from_kj(rec.energies[lvl]):.4f}" if lvl in rec.energies else "" for lvl in levels]
-        row += [r.shape.value for r in rec.rings]
-        row += [f"{r.q_total:.4f}" for r in rec.rings]
-        row += [
-            "; ".join(f"{ens.symbols[s.atom]}{s.atom}:{s.position.value}" for s in rec.substituents),
-            " ".join(rec.families),
-            "yes" if rec.converged else "no",
-            rec.origin,
-        ]
-        writer.writerow(row)
+    rows = [record_fields(ens, unit, rec) for rec in ens.conformers]
+    header: list[str] = []
+    for row in rows:
+        header += [k for k in row if k not in header]
+    writer = csv.DictWriter(buf, fieldnames=header, lineterminator="\n", restval="")
+    writer.writeheader()
+    writer.writerows(rows)
     return buf.getvalue()
 
 
@@ -140,15 +125,41 @@ def _atomic_write(path: Path, text: str) -> None:
         raise
 
 
-def _write_directory(ens: Ensemble, path: Path, unit: EnergyUnit) -> list[Path]:
+#: Files of an earlier run that a directory target would mix with the new ones.
+_CONFORMER_FILE_PATTERNS = ("rank_*.xyz", "isomer_*/rank_*.xyz")
+
+
+def _old_conformer_files(folder: Path) -> list[Path]:
+    if not folder.is_dir():
+        return []
+    return sorted(p for pattern in _CONFORMER_FILE_PATTERNS for p in folder.glob(pattern))
+
+
+def _write_directory(ens: Ensemble, path: Path, unit: EnergyUnit, overwrite: bool = False) -> list[Path]:
     if path.exists() and not path.is_dir():
         raise OptionError(f"{str(path)!r} exists and is not a directory")
+    old = _old_conformer_files(path)
+    if old and not overwrite:
+        raise OutputError(_old_files_message(path, old))
+    for stale in old:
+        if stale.parent == path:
+            stale.unlink()
     written = []
     for rank, rec in enumerate(ens.conformers, start=1):
         target = path / f"rank_{rank:03d}.xyz"
         _atomic_write(target, _xyz_block(ens, rec, _xyz_comment(ens, unit, rec)))
         written.append(target)
     return written
+
+
+def _old_files_message(path: Path, old: list[Path]) -> str:
+    from chairbuild.optnames import spell
+
+    shown = ", ".join(str(p.relative_to(path)) for p in old[:3]) + (", ..." if len(old) > 3 else "")
+    return (
+        f"{str(path)!r} already holds {len(old)} conformer file(s) of an earlier run ({shown}); "
+        f"use {spell('overwrite', True)} to replace them, or another directory"
+    )
 
 
 _TEXT_WRITERS: dict[str, Callable[[Ensemble, EnergyUnit], str]] = {
@@ -168,11 +179,12 @@ def _is_directory_target(path_text: str) -> bool:
     return path_text.endswith(("/", os.sep)) or path.is_dir() or path.suffix == ""
 
 
-def check_target(path_text: str) -> None:
+def check_target(path_text: str, overwrite: bool = False) -> None:
     """Raise before any work if ``path_text`` cannot be written.
 
     OptionError for an unknown extension; OutputError when the nearest existing folder
-    on the path is not a writable directory.
+    on the path is not a writable directory, or when a directory target already holds
+    conformer files of an earlier run (``rank_*.xyz``) and ``overwrite`` is not set.
     """
     if not _is_directory_target(path_text):
         suffix = Path(path_text).suffix.lower()
@@ -187,34 +199,56 @@ def check_target(path_text: str) -> None:
         probe = probe.parent
     if not probe.is_dir() or not os.access(probe, os.W_OK | os.X_OK):
         raise OutputError(f"cannot write {path_text!r}: {str(probe)!r} is not a writable directory")
+    if _is_directory_target(path_text) and not overwrite:
+        old = _old_conformer_files(Path(path_text))
+        if old:
+            raise OutputError(_old_files_message(Path(path_text), old))
 
 
-def write(ens: Ensemble, path_text: str, unit: EnergyUnit = EnergyUnit.KJ) -> list[Path]:
-    """Write ``ens`` to ``path_text``; the format follows the extension. Returns the files written."""
-    check_target(path_text)
+def write(ens: Ensemble, path_text: str, unit: EnergyUnit = EnergyUnit.KJ, overwrite: bool = False) -> list[Path]:
+    """Write ``ens`` to ``path_text``; the format follows the extension. Returns the files written.
+
+    A directory target that holds conformer files of an earlier run is refused unless
+    ``overwrite`` (then those ``rank_*.xyz`` files are replaced).
+    """
+    check_target(path_text, overwrite)
     if _is_directory_target(path_text):
-        return _write_directory(ens, Path(path_text), unit)
+        return _write_directory(ens, Path(path_text), unit, overwrite)
     path = Path(path_text)
     _atomic_write(path, _TEXT_WRITERS[path.suffix.lower()](ens, unit))
     return [path]
 
 
+#: The sign convention of the family columns, stated under every family table.
+FAMILY_CONVENTION = (
+    "dG = G(family) - G(most populated family of the ring), >= 0; "
+    "K = P(most populated)/P(family) = exp(dG/RT), >= 1"
+)
+
+
 def format_table(ens: Ensemble, unit: EnergyUnit = EnergyUnit.KJ, max_rows: int = 25) -> str:
-    """Human-readable summary: conformers, ring families, notes."""
+    """Human-readable summary: conformers, ring families, notes.
+
+    Atom numbers are 0-based (the JSON's and RDKit's indices), which the table says.
+    """
+    from chairbuild.frames import charge_text
+
     u = unit.value
+    delta = "dG" if ens.ranking == "free_energy" else "dE"
     lines = [
         f"{ens.name}   {ens.smiles}",
-        f"method {ens.method}, ranked by {ens.ranking.replace('_', ' ')}, T = {ens.temperature:.2f} K, "
-        f"energies in {u}, window {unit.from_kj(ens.window):.1f} {u}",
+        f"charge {charge_text(ens.charge)}, multiplicity {ens.multiplicity}; method {ens.method}, "
+        f"ranked by {ens.ranking.replace('_', ' ')}, T = {ens.temperature:.2f} K, "
+        f"energies in {u}, window {unit.from_kj(ens.window):.1f} {u}; atom numbers 0-based",
         "",
     ]
     ring_cols = [f"ring{k}" for k in range(len(ens.ring_atoms))]
-    head = f"{'id':>3} {'dE':>8} {'pop %':>7} {'g':>2}  " + " ".join(f"{c:<11}" for c in ring_cols) + "  substituents"
+    head = f"{'id':>3} {delta:>8} {'pop %':>7} {'g':>2}  " + " ".join(f"{c:<11}" for c in ring_cols) + "  substituents"
     lines.append(head)
     lines.append("-" * len(head))
     for rec in ens.conformers[:max_rows]:
         subs = ", ".join(
-            f"{ens.symbols[s.atom]}{s.atom}({s.group}) {_short(s.position.value)}" for s in rec.substituents if not _is_ring_bond(ens, s)
+            f"{s.label(ens.symbols)} {_short(s.position.value)}" for s in rec.substituents if not _is_ring_bond(ens, s)
         )
         shapes = " ".join(f"{r.shape.value:<11}" for r in rec.rings)
         lines.append(
@@ -222,10 +256,12 @@ def format_table(ens: Ensemble, unit: EnergyUnit = EnergyUnit.KJ, max_rows: int 
         )
     if len(ens.conformers) > max_rows:
         lines.append(f"... {len(ens.conformers) - max_rows} more conformer(s) in the file outputs")
+    any_family = False
     for r in range(len(ens.ring_atoms)):
         fams = [f for f in ens.families if f.ring_index == r]
         if not fams:
             continue
+        any_family = True
         lines += ["", f"ring {r} (atoms {'-'.join(map(str, ens.ring_atoms[r]))}): families"]
         lines.append(f"  {'pop %':>7} {'dG':>7} {'K':>9} {'additive':>9} {'model':>7}  family")
         partial_notes: list[str] = []
@@ -240,8 +276,11 @@ def format_table(ens: Ensemble, unit: EnergyUnit = EnergyUnit.KJ, max_rows: int 
             )
         if partial_notes:
             lines.append("  * additive estimate partial: " + "; ".join(n.split(": ", 1)[-1] for n in partial_notes))
-    if ens.notes:
-        lines += ["", "notes:"] + [f"  - {n}" for n in ens.notes]
+    if any_family:
+        lines.append(f"  ({FAMILY_CONVENTION})")
+    notes = ens.notes_in(unit)
+    if notes:
+        lines += ["", "notes:"] + [f"  - {n}" for n in notes]
     if ens.rejected:
         lines.append(f"  - {len(ens.rejected)} structure(s) rejected (see JSON 'rejected' for status and reason)")
     return "\n".join(lines)
@@ -255,10 +294,10 @@ def _is_ring_bond(ens: Ensemble, sub) -> bool:
     return any(sub.atom in ring for ring in ens.ring_atoms)
 
 
-def write_many(ensembles: Sequence[Ensemble], path_text: str, unit: EnergyUnit) -> list[Path]:
+def write_many(ensembles: Sequence[Ensemble], path_text: str, unit: EnergyUnit, overwrite: bool = False) -> list[Path]:
     """Write several ensembles (one per diastereomer) to ``path_text``, numbering them when more than one."""
     if len(ensembles) == 1:
-        return write(ensembles[0], path_text, unit)
+        return write(ensembles[0], path_text, unit, overwrite)
     written = []
     for k, ens in enumerate(ensembles, start=1):
         if _is_directory_target(path_text):
@@ -266,5 +305,5 @@ def write_many(ensembles: Sequence[Ensemble], path_text: str, unit: EnergyUnit) 
         else:
             p = Path(path_text)
             target = str(p.with_name(f"{p.stem}_isomer{k}{p.suffix}"))
-        written += write(ens, target, unit)
+        written += write(ens, target, unit, overwrite)
     return written

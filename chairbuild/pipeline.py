@@ -16,6 +16,7 @@ import numpy as np
 from chairbuild.constants import T_DEFAULT
 from chairbuild.errors import OptionError, StereoError
 from chairbuild.minimise import ForceFieldVariant
+from chairbuild.optnames import spell
 from chairbuild.result import Status
 
 __all__ = ["AnalysisOptions", "analyze", "analyze_all", "DEFAULT_WINDOW_KJ"]
@@ -83,12 +84,16 @@ class AnalysisOptions:
             if rerank is not Level.GFN2:
                 raise OptionError("rerank accepts only 'gfn2'")
             if self.method is Level.GFN2:
-                raise OptionError("rerank=gfn2 re-scores MMFF geometries; it cannot be combined with method=gfn2")
+                raise OptionError(
+                    f"{spell('rerank', 'gfn2')} re-scores MMFF geometries; it cannot be combined with {spell('method', 'gfn2')}"
+                )
             object.__setattr__(self, "rerank", rerank)
         uses_xtb = self.method is Level.GFN2 or self.rerank is not None
         if self.solvent is not None:
             if not uses_xtb:
-                raise OptionError("a solvent needs the GFN2-xTB level: add method='gfn2' or rerank='gfn2'")
+                raise OptionError(
+                    f"{spell('solvent')} needs the GFN2-xTB level: add {spell('method', 'gfn2')} or {spell('rerank', 'gfn2')}"
+                )
             from chairbuild.forcefields.xtb import available_solvents
 
             valid = available_solvents(self.solvation_model, include_aliases=True)
@@ -155,8 +160,29 @@ def analyze_all(
     opts = _options(options)
     prepared = read_molecules(molecule, record=record, enumerate_stereo=enumerate_stereo, name=name)
     if len(prepared) > 1 and not enumerate_stereo:
-        raise StereoError("several diastereomers; use enumerate_stereo")
+        raise StereoError(f"several diastereomers; use {spell('enumerate_stereo', True)}")
+    prepared = [replace(p, notes=p.notes + _open_shell_notes(p, opts)) for p in prepared]
     return [_run_one(p, opts) for p in prepared]
+
+
+def _open_shell_notes(prepared, opts: AnalysisOptions) -> tuple[str, ...]:
+    """Refuse a radical at a closed-shell level (see :mod:`chairbuild.spin`); notes otherwise."""
+    from chairbuild.input import charge_and_multiplicity
+    from chairbuild.rerank import Level, method_label
+    from chairbuild.spin import open_shell_notes
+
+    _, multiplicity = charge_and_multiplicity(prepared.mol)
+    xtb = opts.method is Level.GFN2 or opts.rerank is Level.GFN2
+    ff = opts.forcefield.value
+    return open_shell_notes(
+        prepared.mol,
+        multiplicity,
+        ranking_level=method_label(opts.forcefield, opts.method, opts.rerank, opts.solvent, opts.solvation_model),
+        ranking_open_shell=xtb,
+        thermal_level=None if not opts.free_energy else ("GFN2-xTB" if opts.method is Level.GFN2 else ff),
+        thermal_open_shell=opts.method is Level.GFN2,
+        geometry_level=ff if opts.rerank is Level.GFN2 else None,
+    )
 
 
 def _run_one(prepared, opts: AnalysisOptions):
@@ -280,8 +306,6 @@ def _assemble_result(prepared, analysis, ranked, rejected, opts, method_label, b
     e_min = energies.min() if len(energies) else 0.0
     keep = [i for i, e in enumerate(energies) if e - e_min <= opts.window]
     dropped = len(ranked) - len(keep)
-    if dropped:
-        notes.append(f"{dropped} conformer(s) above the {opts.window:g} kJ/mol window were left out")
     kept = [ranked[i] for i in keep]
     pops = (
         boltzmann_populations(
@@ -301,7 +325,7 @@ def _assemble_result(prepared, analysis, ranked, rejected, opts, method_label, b
             families=family_keys(n_rings, rings, subs),
             converged=structure.converged,
             rms_gradient=structure.rms_gradient,
-            origin=structure.origin,
+            start_state=structure.origin,
             **fields,
         )
 
@@ -370,6 +394,7 @@ def _assemble_result(prepared, analysis, ranked, rejected, opts, method_label, b
         families=families,
         notes=tuple(notes),
         provenance=provenance,
+        outside_window=dropped,
     )
 
 

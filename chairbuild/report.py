@@ -208,7 +208,7 @@ def _conformer_table(ens: Ensemble) -> str:
     rows = []
     for rec in ens.conformers:
         subs = " ".join(
-            _chip(f"{ens.symbols[s.atom]}{s.atom} ({s.group}) {POSITION_TEXT[s.position]}"
+            _chip(f"{s.label(ens.symbols)} {POSITION_TEXT[s.position]}"
                   + (f" r{s.ring_index}" if len(ens.ring_atoms) > 1 else ""), POSITION_COLOURS[s.position])
             for s in rec.substituents
         )
@@ -270,8 +270,11 @@ def _family_tables(ens: Ensemble) -> str:
             "<th>force field (kJ/mol)</th><th>check</th><th>additive breakdown</th></tr>" + "".join(rows) + "</table>"
         )
     if out:
+        from chairbuild.output import FAMILY_CONVENTION
+
         out.append(
-            "<p><small>Additive and force-field values are relative to the ring's chair family with the "
+            f"<p><small>Sign convention: {_e(FAMILY_CONVENTION)}. "
+            "Additive and force-field values are relative to the ring's chair family with the "
             f"lowest additive estimate. A family is flagged when they differ by more than {DISAGREEMENT_KJ:g} kJ/mol: "
             "then the increments (A-values, gauche and syn-diaxial terms) do not describe this ring well, and the "
             "explicit ensemble is the better of the two estimates, but still a model estimate.</small></p>"
@@ -369,7 +372,7 @@ def _section(ens: Ensemble, idx: int, caveat: str) -> str:
             + _png_tag(family_temperature_figure(ens), "family populations against temperature")
             + _png_tag(additive_vs_model_figure(ens), "force field against additive estimate per chair family")
         )
-    notes = list(ens.notes)
+    notes = list(ens.notes_in("kJ/mol"))
     if ens.rejected:
         notes.append(f"{len(ens.rejected)} structure(s) rejected: " + "; ".join(
             f"{r.status.value}{': ' + r.message if r.message else ''}" for r in ens.rejected[:10]))
@@ -378,7 +381,8 @@ def _section(ens: Ensemble, idx: int, caveat: str) -> str:
 <section id="cb-ens-{idx}">
 <h2>{_e(ens.name)}</h2>
 <p><code>{_e(ens.smiles)}</code> — {len(ens.conformers)} conformer(s), {_e(ens.method)},
-ranked by {_e(ens.ranking.replace('_', ' '))}, T = {ens.temperature:.2f} K</p>
+ranked by {_e(ens.ranking.replace('_', ' '))}, T = {ens.temperature:.2f} K,
+total charge {ens.charge}, multiplicity {ens.multiplicity}; atom numbers are 0-based</p>
 <div class="caveat"><b>Model estimates.</b> {_e(caveat)}</div>
 <h3>Conformers (energy order)</h3>
 {_conformer_table(ens)}

@@ -198,11 +198,17 @@ def _with_free_energies(mol, ranked, model, temperature, progress) -> list[Ranke
 _WORKER: dict = {}
 
 
-def _worker_init(mol_block: str, solvent, solvation_model: str, label: str) -> None:
+def _worker_init(mol_block: str, solvent, solvation_model: str, label: str, charge: int, unpaired: int) -> None:
     from chairbuild.forcefields.xtb import XTBModel
 
+    import signal
+
+    # Ctrl-C is the parent's to handle: it cancels the tasks and terminates the workers
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
     mol = Chem.MolFromMolBlock(mol_block, removeHs=False)
-    _WORKER["model"] = XTBModel(mol, solvent=solvent, solvation_model=solvation_model, threads=1, label=label)
+    _WORKER["model"] = XTBModel(
+        mol, charge=charge, unpaired_electrons=unpaired, solvent=solvent, solvation_model=solvation_model, threads=1, label=label
+    )
 
 
 def _run_task(model, kind: str, coords: np.ndarray):
@@ -237,10 +243,16 @@ class _XTBRunner:
 
         from chairbuild.forcefields.xtb import XTBModel
 
+        from chairbuild.input import charge_and_multiplicity
+
         self.mol_block = Chem.MolToMolBlock(mol)
-        self.args = (self.mol_block, solvent, solvation_model, label)
+        # total charge and unpaired electrons stated explicitly (open shell for a radical)
+        charge, multiplicity = charge_and_multiplicity(mol)
+        self.args = (self.mol_block, solvent, solvation_model, label, charge, multiplicity - 1)
         self.workers = threads if threads is not None else (os.cpu_count() or 1)
-        self.local = XTBModel(mol, solvent=solvent, solvation_model=solvation_model, threads=1, label=label)
+        self.local = XTBModel(
+            mol, charge=charge, unpaired_electrons=multiplicity - 1, solvent=solvent, solvation_model=solvation_model, threads=1, label=label
+        )
         self.name = self.local.name
 
     def map(self, kind: str, coords_list: list[np.ndarray], desc: str, progress: bool) -> list:
@@ -254,11 +266,39 @@ class _XTBRunner:
         # fork: no re-import of the caller's script; the workers use tblite with one OpenMP
         # thread, so libgomp's thread pool (not fork-safe) is never needed in them
         ctx = multiprocessing.get_context("fork")
-        with ProcessPoolExecutor(
+        pool = ProcessPoolExecutor(
             max_workers=min(self.workers, len(coords_list)), mp_context=ctx, initializer=_worker_init, initargs=self.args
-        ) as pool:
+        )
+        try:
             futures = [pool.submit(_worker_task, kind, c) for c in coords_list]
-            results = []
-            for fut in _progress(futures, len(futures), desc, progress):
-                results.append(fut.result())
+            results = [_wait_for(fut) for fut in _progress(futures, len(futures), desc, progress)]
+        except BaseException:  # Ctrl-C (KeyboardInterrupt) or a failed task: stop now, not after the queue
+            _abandon_pool(pool)
+            raise
+        pool.shutdown(wait=True)
         return results
+
+
+#: Seconds between wake-ups of the parent while it waits for a worker (how soon Ctrl-C is seen).
+_WAIT_SLICE_S = 0.1
+
+
+def _wait_for(future):
+    """``future.result()`` in short slices: a SIGINT that the kernel hands to another thread
+    of this process still reaches the main thread within :data:`_WAIT_SLICE_S`."""
+    while True:
+        try:
+            return future.result(timeout=_WAIT_SLICE_S)
+        except TimeoutError:
+            continue
+
+
+def _abandon_pool(pool) -> None:
+    """Cancel the queued tasks and terminate the worker processes without waiting for running ones."""
+    workers = list((getattr(pool, "_processes", None) or {}).values())
+    pool.shutdown(wait=False, cancel_futures=True)
+    for proc in workers:
+        if proc.is_alive():
+            proc.terminate()
+    for proc in workers:
+        proc.join(timeout=1.0)

@@ -15,7 +15,7 @@ from __future__ import annotations
 
 import enum
 import json
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from types import MappingProxyType
 from typing import Any, Mapping
@@ -194,6 +194,10 @@ class SubstituentDescriptor:
     cos_normal: float
     torsions: Mapping[str, float] = field(default_factory=dict)
 
+    def label(self, symbols: tuple[str, ...] | list[str]) -> str:
+        """How every output spells this substituent: element, 0-based atom number, group (``C0(C)``)."""
+        return f"{symbols[self.atom]}{self.atom}({self.group})"
+
     def to_dict(self) -> dict[str, Any]:
         return {
             "atom": self.atom,
@@ -248,8 +252,9 @@ class ConformerRecord:
     status : Status
     message : str
         Why a record is not OK; notes otherwise.
-    origin : str
-        The starting point it was built from (ring states and rotamer).
+    start_state : str
+        The starting structure it was minimised from: ring states, substituent placement
+        and rotamer (``chair0|placement0|rot(...)``), or the refinement seed that led to it.
     thermo : Mapping[str, float]
         ``energy`` (absolute, ranking level, kJ/mol) always; ``enthalpy``, ``free_energy``
         and ``zpe`` (kJ/mol), ``entropy_J_per_molK``, ``symmetry_number`` and
@@ -269,7 +274,7 @@ class ConformerRecord:
     rms_gradient: float
     status: Status = Status.OK
     message: str = ""
-    origin: str = ""
+    start_state: str = ""
     thermo: Mapping[str, float] = field(default_factory=dict)
 
     def __post_init__(self) -> None:
@@ -290,7 +295,7 @@ class ConformerRecord:
             "families": list(self.families),
             "converged": self.converged,
             "rms_gradient": round(self.rms_gradient, 5),
-            "origin": self.origin,
+            "start_state": self.start_state,
             "message": self.message,
             "coordinates": [[sym, *[round(float(c), 5) for c in xyz]] for sym, xyz in zip(symbols, self.coords)],
         }
@@ -326,7 +331,7 @@ class ConformerRecord:
             rms_gradient=float(d["rms_gradient"]),
             status=Status(d["status"]),
             message=str(d["message"]),
-            origin=str(d["origin"]),
+            start_state=str(d["start_state"]),
             thermo=thermo,
         )
 
@@ -493,6 +498,9 @@ class Ensemble:
         Total charge (sum of formal charges) of the molecule.
     multiplicity : int
         Spin multiplicity 2S + 1 (1 closed shell, 2 a radical).
+    outside_window : int
+        Number of distinct conformers left out because they lie above the window (their
+        note is written by :meth:`notes_in`, in the unit of the output).
     """
 
     name: str
@@ -511,6 +519,7 @@ class Ensemble:
     provenance: Mapping[str, Any] = field(default_factory=dict)
     charge: int = 0
     multiplicity: int = 1
+    outside_window: int = 0
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "provenance", MappingProxyType(dict(self.provenance)))
@@ -522,6 +531,49 @@ class Ensemble:
     def __iter__(self):
         return iter(self.conformers)
 
+    def __getitem__(self, index: int) -> ConformerRecord:
+        """``ens[k]``: the kept conformer of rank ``k`` (0 = lowest; negative counts from the end)."""
+        return self.conformers[index]
+
+    def __repr__(self) -> str:
+        best = self.conformers[0].rings if self.conformers else ()
+        shapes = "+".join(r.shape.value for r in best) or "no ring"
+        charge = f"{self.charge:+d}" if self.charge else "0"
+        return (
+            f"<Ensemble {self.name!r}: {len(self.conformers)} conformer(s), {self.method}, "
+            f"T={self.temperature:g} K, charge {charge}, multiplicity {self.multiplicity}; lowest {shapes}>"
+        )
+
+    def _repr_html_(self) -> str:
+        """Summary table for notebooks (see :func:`chairbuild.frames.ensemble_html`)."""
+        from chairbuild.frames import ensemble_html
+
+        return ensemble_html(self)
+
+    def window_note(self, unit: EnergyUnit | str = EnergyUnit.KJ) -> str | None:
+        """The note on conformers left out above the window, in ``unit`` (None when none was)."""
+        if not self.outside_window:
+            return None
+        unit = unit if isinstance(unit, EnergyUnit) else EnergyUnit.parse(unit)
+        return f"{self.outside_window} conformer(s) above the {unit.from_kj(self.window):.4g} {unit.value} window were left out"
+
+    def notes_in(self, unit: EnergyUnit | str = EnergyUnit.KJ) -> tuple[str, ...]:
+        """:attr:`notes` plus the notes whose numbers are formatted in ``unit`` (the window)."""
+        extra = self.window_note(unit)
+        return self.notes + ((extra,) if extra else ())
+
+    def to_dataframe(self, unit: EnergyUnit | str = EnergyUnit.KJ, include_rejected: bool = False):
+        """One row per conformer as a pandas DataFrame (see :func:`chairbuild.frames.conformers_frame`)."""
+        from chairbuild.frames import conformers_frame
+
+        return conformers_frame(self, unit, include_rejected)
+
+    def families_dataframe(self, unit: EnergyUnit | str = EnergyUnit.KJ):
+        """One row per ring-state family as a pandas DataFrame (see :func:`chairbuild.frames.families_frame`)."""
+        from chairbuild.frames import families_frame
+
+        return families_frame(self, unit)
+
     def family(self, key: str) -> FamilyRecord:
         """Return the family with ``key``; raise KeyError if absent."""
         for fam in self.families:
@@ -529,21 +581,16 @@ class Ensemble:
                 return fam
         raise KeyError(key)
 
-    def to_rdkit(self, include_rejected: bool = False):
-        """Return an RDKit molecule with one conformer per record (in rank order)."""
-        from rdkit import Chem
-        from rdkit.Geometry import Point3D
+    def to_rdkit(self, include_rejected: bool = False, unit: EnergyUnit | str = EnergyUnit.KJ):
+        """One RDKit molecule holding every conformer (rank order) with its properties.
 
-        mol = Chem.MolFromMolBlock(self.mol_block, removeHs=False)
-        mol.RemoveAllConformers()
-        records = self.conformers + (self.rejected if include_rejected else ())
-        for rec in records:
-            conf = Chem.Conformer(mol.GetNumAtoms())
-            for i, (x, y, z) in enumerate(rec.coords):
-                conf.SetAtomPosition(i, Point3D(float(x), float(y), float(z)))
-            conf.SetId(rec.id)
-            mol.AddConformer(conf, assignId=False)
-        return mol
+        See :func:`chairbuild.frames.ensemble_to_rdkit`: conformer ``k`` has id ``k`` and
+        carries energies per level, population, ring shapes and substituent positions as
+        conformer properties; the molecule carries name, method, charge and multiplicity.
+        """
+        from chairbuild.frames import ensemble_to_rdkit
+
+        return ensemble_to_rdkit(self, include_rejected, unit)
 
     # -------------------------------------------------------------- serialize
     def to_dict(self, unit: EnergyUnit | str = EnergyUnit.KJ) -> dict[str, Any]:
@@ -566,7 +613,8 @@ class Ensemble:
             "conformers": [c.to_dict(unit, self.symbols) for c in self.conformers],
             "families": [f.to_dict(unit) for f in self.families],
             "rejected": [c.to_dict(unit, self.symbols) for c in self.rejected],
-            "notes": list(self.notes),
+            "notes": list(self.notes_in(unit)),
+            "outside_window": self.outside_window,
             "provenance": _jsonable(dict(self.provenance)),
         }
 
@@ -597,7 +645,7 @@ class Ensemble:
             )
         try:
             unit = EnergyUnit.parse(d["energy_unit"])
-            return cls(
+            ens = cls(
                 name=str(d["name"]),
                 smiles=str(d["smiles"]),
                 mol_block=str(d["mol_block"]),
@@ -614,7 +662,11 @@ class Ensemble:
                 provenance=dict(d["provenance"]),
                 charge=int(d["charge"]),
                 multiplicity=int(d["multiplicity"]),
+                outside_window=int(d.get("outside_window", 0)),
             )
+            # the notes written from numbers at output time are not stored as text
+            generated = ens.window_note(unit)
+            return replace(ens, notes=tuple(n for n in ens.notes if n != generated))
         except (KeyError, TypeError, ValueError, IndexError) as exc:
             raise InputError(f"malformed chairbuild result: {type(exc).__name__}: {exc}") from None
 

@@ -259,7 +259,7 @@ def scene_labels(result: Ensemble, conformer: int = 0, torsion_labels: bool = Fa
     for sub in rec.substituents:
         bond = xyz[sub.atom] - xyz[sub.ring_atom]
         anchor = xyz[sub.atom] + _LABEL_OFFSET_A * bond / max(np.linalg.norm(bond), 1e-9)
-        text = f"{result.symbols[sub.atom]}{sub.atom} {POSITION_TEXT[sub.position]}"
+        text = f"{sub.label(result.symbols)} {POSITION_TEXT[sub.position]}"
         if several_rings:
             text += f" (ring {sub.ring_index})"
         labels.append(

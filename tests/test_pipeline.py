@@ -143,7 +143,7 @@ def test_json_contract(methylcyclohexane):
 def test_window_and_unknown_options():
     narrow = analyze("CC1CCCCC1", window=10.0)
     assert all(c.relative_energy <= 10.0 for c in narrow.conformers)
-    assert any("window" in n for n in narrow.notes)
+    assert narrow.outside_window > 0 and any("10 kJ/mol window" in n for n in narrow.notes_in("kJ/mol"))
     with pytest.raises(OptionError, match="unknown option"):
         analyze("CC1CCCCC1", colour="red")
     with pytest.raises(OptionError, match="temperature"):

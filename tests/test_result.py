@@ -43,7 +43,7 @@ def test_round_trip_restores_kj_values_and_the_molecule(ensemble):
         assert_close(a.thermo["free_energy"], b.thermo["free_energy"], 1e-3, "free energy after a kcal round trip")
         assert_close(a.coords, b.coords, 1e-5, "coordinates")
         assert a.substituents[0].position is b.substituents[0].position
-        assert a.origin == b.origin and a.families == b.families
+        assert a.start_state == b.start_state and a.families == b.families
     assert_close(
         [t.value for f in back.families for t in f.additive_terms],
         [t.value for f in ensemble.families for t in f.additive_terms],

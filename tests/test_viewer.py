@@ -75,7 +75,9 @@ def test_position_labels_match_result_substituents(which, request):
         for lab in labels:
             assert lab.colour == POSITION_COLOURS[lab.position]
             assert POSITION_TEXT[lab.position] in lab.text.split()
-            assert lab.text.startswith(f"{ens.symbols[lab.atom]}{lab.atom} ")
+            # the one spelling of a substituent in every output (SubstituentDescriptor.label)
+            sub = next(s for s in rec.substituents if s.atom == lab.atom)
+            assert lab.text.startswith(f"{ens.symbols[lab.atom]}{lab.atom}({sub.group}) ")
 
 
 def test_locked_chair_labels_methyl_axial_and_tert_butyl_equatorial(locked):
