@@ -4,7 +4,8 @@ The public entry points are imported lazily so that ``import chairbuild`` does n
 and pulls in no heavy library:
 
 * :func:`chairbuild.analyze` runs the whole pipeline and returns an
-  :class:`chairbuild.result.Ensemble`;
+  :class:`chairbuild.result.Ensemble` (:func:`chairbuild.analyze_all`: one per
+  diastereomer when ``enumerate_stereo=True``);
 * :func:`chairbuild.view` shows an ensemble in a notebook;
 * :func:`chairbuild.load` reads a saved JSON result back into an ``Ensemble``
   (:func:`chairbuild.load_all` for a file with several, one per diastereomer).
@@ -14,7 +15,7 @@ from __future__ import annotations
 
 __version__ = "0.1.0"
 
-__all__ = ["analyze", "view", "load", "load_all", "__version__"]
+__all__ = ["analyze", "analyze_all", "view", "load", "load_all", "__version__"]
 
 
 def __getattr__(name: str):
@@ -22,6 +23,10 @@ def __getattr__(name: str):
         from chairbuild.pipeline import analyze
 
         return analyze
+    if name == "analyze_all":
+        from chairbuild.pipeline import analyze_all
+
+        return analyze_all
     if name == "load":
         from chairbuild.result import load_json
 
