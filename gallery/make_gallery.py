@@ -40,14 +40,16 @@ for fig in (energy_population_figure(ens), family_temperature_figure(ens), addit
     display(Image(figure_png(fig, dpi=80)))"""
 
 
-def family_summary(var: str) -> str:
-    """Code that prints each ring's families with populations and the additive comparison."""
-    return f"""for fam in {var}.families:
-    add = "n/a" if fam.additive_energy is None else f"{{fam.additive_energy:6.2f}}"
-    model = "n/a" if fam.model_energy is None else f"{{fam.model_energy:6.2f}}"
-    flag = "  DISAGREES" if fam.disagreement else ""
-    print(f"ring {{fam.ring_index}}  {{100 * fam.population:6.2f}} %  additive {{add}}  force field {{model}} kJ/mol  "
-          f"{{fam.label}}{{flag}}")"""
+#: Columns of ``Ensemble.families_dataframe()`` shown in the notebooks.
+FAMILY_COLUMNS = (
+    '["ring_index", "label", "population", "delta_g_kJ_mol", "K", '
+    '"additive_energy_kJ_mol", "model_energy_kJ_mol", "disagreement", "additive_partial"]'
+)
+
+
+def family_summary(*names: str) -> str:
+    """Code that displays each ensemble's family table (one DataFrame per ensemble)."""
+    return "\n".join(f"display({var}.families_dataframe()[{FAMILY_COLUMNS}].round(3))" for var in names)
 
 
 @dataclass(frozen=True)
@@ -87,7 +89,7 @@ print(format_table(free))"""),
 one family. `pop %` is the summed Boltzmann population at 298 K; `additive` is the estimate from
 tabulated increments (A-values), `model` the force-field value, both relative to the ring's lowest
 additive chair family."""),
-            ("code", family_summary("free") + "\nprint()\n" + family_summary("locked")),
+            ("code", family_summary("free", "locked")),
             ("md", "### Plots for the locked compound\nRelative energy and population per conformer, family populations re-weighted between 150 and 400 K, and force field against additive estimate per chair family."),
             ("code", "ens = locked\n" + PLOTS),
             ("md", """### 3D view
@@ -232,7 +234,7 @@ trans = chairbuild.analyze("CO[C@H]1CC[C@@H]2CCCC[C@H]2C1", name="trans-fused 2-
 cis = chairbuild.analyze("CO[C@@H]1CC[C@@H]2CCCC[C@@H]2C1", name="cis-fused 2-methoxydecalin")
 print(format_table(trans, max_rows=8))"""),
             ("code", "print(format_table(cis, max_rows=8))"),
-            ("code", family_summary("trans") + "\nprint()\n" + family_summary("cis")),
+            ("code", family_summary("trans", "cis")),
             ("code", "ens = cis\n" + PLOTS),
             ("md", "### 3D view of the cis-fused spacer\nThe lowest chair-chair form, then the two chair-chair forms overlaid on the ring atoms."),
             ("code", "chairbuild.view(cis, conformer=0, width=640, height=420)"),
