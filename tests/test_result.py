@@ -22,7 +22,8 @@ def ensemble():
     # a note and a non-zero charge are added so that every part of the layout is exercised
     ens = analyze("C[C@H]1CC[C@H](O)CC1", free_energy=True)
     bad = replace(ens.conformers[-1], id=-1, relative_energy=float("nan"), status=Status.NOT_CONVERGED, message="test")
-    return replace(ens, rejected=(bad,), notes=ens.notes + ("a note",), charge=1)
+    # a window note is written from outside_window at output time and must not come back doubled
+    return replace(ens, rejected=(bad,), notes=ens.notes + ("a note",), charge=1, outside_window=3)
 
 
 @pytest.mark.parametrize("unit", ["kJ/mol", "kcal/mol"])
@@ -53,6 +54,7 @@ def test_round_trip_restores_kj_values_and_the_molecule(ensemble):
     assert back.rejected[0].status is Status.NOT_CONVERGED and np.isnan(back.rejected[0].relative_energy)
     assert (back.charge, back.multiplicity, back.symbols, back.mol_block) == (1, 1, ensemble.symbols, ensemble.mol_block)
     assert back.provenance["options"]["free_energy"] is True
+    assert back.notes == ensemble.notes and back.outside_window == 3
     mol = back.to_rdkit()
     assert mol.GetNumConformers() == len(ensemble.conformers) and mol.GetNumAtoms() == len(ensemble.symbols)
 
