@@ -5,14 +5,16 @@ and pulls in no heavy library:
 
 * :func:`chairbuild.analyze` runs the whole pipeline and returns an
   :class:`chairbuild.result.Ensemble`;
-* :func:`chairbuild.view` shows an ensemble in a notebook.
+* :func:`chairbuild.view` shows an ensemble in a notebook;
+* :func:`chairbuild.analyze_many` analyses a list or file of molecules through a batch
+  store, and :func:`chairbuild.open_store` reads such a store back.
 """
 
 from __future__ import annotations
 
 __version__ = "0.1.0"
 
-__all__ = ["analyze", "view", "__version__"]
+__all__ = ["analyze", "view", "analyze_many", "open_store", "__version__"]
 
 
 def __getattr__(name: str):
@@ -24,4 +26,8 @@ def __getattr__(name: str):
         from chairbuild.viewer import view
 
         return view
+    if name in ("analyze_many", "open_store"):
+        from chairbuild import batch
+
+        return getattr(batch, name)
     raise AttributeError(f"module 'chairbuild' has no attribute {name!r}")
