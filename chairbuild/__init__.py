@@ -6,6 +6,8 @@ and pulls in no heavy library:
 * :func:`chairbuild.analyze` runs the whole pipeline and returns an
   :class:`chairbuild.result.Ensemble`;
 * :func:`chairbuild.view` shows an ensemble in a notebook;
+* :func:`chairbuild.load` reads a saved JSON result back into an ``Ensemble``
+  (:func:`chairbuild.load_all` for a file with several, one per diastereomer);
 * :func:`chairbuild.analyze_many` analyses a list or file of molecules through a batch
   store, and :func:`chairbuild.open_store` reads such a store back.
 """
@@ -14,7 +16,7 @@ from __future__ import annotations
 
 __version__ = "0.1.0"
 
-__all__ = ["analyze", "view", "analyze_many", "open_store", "__version__"]
+__all__ = ["analyze", "view", "load", "load_all", "analyze_many", "open_store", "__version__"]
 
 
 def __getattr__(name: str):
@@ -22,6 +24,14 @@ def __getattr__(name: str):
         from chairbuild.pipeline import analyze
 
         return analyze
+    if name == "load":
+        from chairbuild.result import load_json
+
+        return load_json
+    if name == "load_all":
+        from chairbuild.result import load_json_all
+
+        return load_json_all
     if name == "view":
         from chairbuild.viewer import view
 

@@ -16,6 +16,7 @@ from __future__ import annotations
 import enum
 import json
 from dataclasses import dataclass, field
+from pathlib import Path
 from types import MappingProxyType
 from typing import Any, Mapping
 
@@ -23,6 +24,7 @@ import numpy as np
 
 from chairbuild.choices import Choice
 from chairbuild.constants import KJ_TO_KCAL
+from chairbuild.errors import InputError
 
 __all__ = [
     "Status",
@@ -36,13 +38,19 @@ __all__ = [
     "AdditiveTerm",
     "Ensemble",
     "SCHEMA_VERSION",
+    "load_json",
+    "load_json_all",
 ]
 
 #: Keys of ``ConformerRecord.thermo`` that are absolute energies (kJ/mol in the record).
 THERMO_ENERGY_KEYS = ("energy", "enthalpy", "free_energy", "zpe")
 
-#: Version of the JSON layout written by :meth:`Ensemble.to_dict`.
-SCHEMA_VERSION = "1.0"
+#: Keys of ``ConformerRecord.thermo`` that are not energies (written as they are).
+_THERMO_PLAIN_KEYS = ("symmetry_number", "imaginary_modes", "entropy_J_per_molK")
+
+#: Version of the JSON layout written by :meth:`Ensemble.to_dict` (1.1 added
+#: ``mol_block`` and ``symbols``, which :meth:`Ensemble.from_dict` needs to rebuild the molecule).
+SCHEMA_VERSION = "1.1"
 
 
 class Status(str, enum.Enum):
@@ -143,6 +151,18 @@ class RingDescriptor:
             "torsions": [round(t, 2) for t in self.torsions],
         }
 
+    @classmethod
+    def from_dict(cls, d: Mapping[str, Any]) -> "RingDescriptor":
+        """Inverse of :meth:`to_dict`."""
+        return cls(
+            atoms=tuple(int(a) for a in d["atoms"]),
+            shape=RingShape(d["shape"]),
+            q_total=float(d["Q"]),
+            theta=float(d["theta"]),
+            phi=float(d["phi"]),
+            torsions=tuple(float(t) for t in d["torsions"]),
+        )
+
 
 @dataclass(frozen=True)
 class SubstituentDescriptor:
@@ -184,6 +204,19 @@ class SubstituentDescriptor:
             "cos_normal": round(self.cos_normal, 3),
             "torsions": {k: round(v, 1) for k, v in self.torsions.items()},
         }
+
+    @classmethod
+    def from_dict(cls, d: Mapping[str, Any]) -> "SubstituentDescriptor":
+        """Inverse of :meth:`to_dict`."""
+        return cls(
+            atom=int(d["atom"]),
+            ring_atom=int(d["ring_atom"]),
+            ring_index=int(d["ring_index"]),
+            group=str(d["group"]),
+            position=Position(d["position"]),
+            cos_normal=float(d["cos_normal"]),
+            torsions={str(k): float(v) for k, v in d["torsions"].items()},
+        )
 
 
 @dataclass(frozen=True)
@@ -248,10 +281,10 @@ class ConformerRecord:
         out: dict[str, Any] = {
             "id": self.id,
             "status": self.status.value,
-            "relative_energy": round(unit.from_kj(self.relative_energy), 4) if np.isfinite(self.relative_energy) else None,
-            "population": round(self.population, 6),
+            "relative_energy": round(unit.from_kj(float(self.relative_energy)), 4) if np.isfinite(self.relative_energy) else None,
+            "population": round(float(self.population), 6),
             "degeneracy": self.degeneracy,
-            "energies": {k: round(unit.from_kj(v), 4) for k, v in self.energies.items()},
+            "energies": {k: round(unit.from_kj(float(v)), 4) for k, v in self.energies.items()},
             "rings": [r.to_dict() for r in self.rings],
             "substituents": [s.to_dict() for s in self.substituents],
             "families": list(self.families),
@@ -262,11 +295,40 @@ class ConformerRecord:
             "coordinates": [[sym, *[round(float(c), 5) for c in xyz]] for sym, xyz in zip(symbols, self.coords)],
         }
         for key in THERMO_ENERGY_KEYS:
-            out[key] = round(unit.from_kj(self.thermo[key]), 4) if key in self.thermo else None
-        for key in ("symmetry_number", "imaginary_modes", "entropy_J_per_molK"):
+            out[key] = round(unit.from_kj(float(self.thermo[key])), 4) if key in self.thermo else None
+        for key in _THERMO_PLAIN_KEYS:
             if key in self.thermo:
                 out[key] = round(float(self.thermo[key]), 4)
         return out
+
+    @classmethod
+    def from_dict(cls, d: Mapping[str, Any], unit: EnergyUnit) -> "ConformerRecord":
+        """Inverse of :meth:`to_dict`: energies in ``unit`` are converted back to kJ/mol."""
+        thermo: dict[str, float] = {}
+        for key in THERMO_ENERGY_KEYS:
+            if d.get(key) is not None:
+                thermo[key] = unit.to_kj(float(d[key]))
+        for key in _THERMO_PLAIN_KEYS:
+            if key in d:
+                thermo[key] = float(d[key])
+        rel = d["relative_energy"]
+        return cls(
+            id=int(d["id"]),
+            coords=np.array([row[1:] for row in d["coordinates"]], dtype=float).reshape(-1, 3),
+            energies={str(k): unit.to_kj(float(v)) for k, v in d["energies"].items()},
+            relative_energy=float("nan") if rel is None else unit.to_kj(float(rel)),
+            population=float(d["population"]),
+            degeneracy=int(d["degeneracy"]),
+            rings=tuple(RingDescriptor.from_dict(r) for r in d["rings"]),
+            substituents=tuple(SubstituentDescriptor.from_dict(x) for x in d["substituents"]),
+            families=tuple(str(f) for f in d["families"]),
+            converged=bool(d["converged"]),
+            rms_gradient=float(d["rms_gradient"]),
+            status=Status(d["status"]),
+            message=str(d["message"]),
+            origin=str(d["origin"]),
+            thermo=thermo,
+        )
 
 
 @dataclass(frozen=True)
@@ -291,7 +353,17 @@ class AdditiveTerm:
     source: str
 
     def to_dict(self, unit: EnergyUnit) -> dict[str, Any]:
-        return {"kind": self.kind, "atoms": list(self.atoms), "value": round(unit.from_kj(self.value), 3), "source": self.source}
+        return {"kind": self.kind, "atoms": list(self.atoms), "value": round(unit.from_kj(float(self.value)), 3), "source": self.source}
+
+    @classmethod
+    def from_dict(cls, d: Mapping[str, Any], unit: EnergyUnit) -> "AdditiveTerm":
+        """Inverse of :meth:`to_dict`."""
+        return cls(
+            kind=str(d["kind"]),
+            atoms=tuple(int(a) for a in d["atoms"]),
+            value=unit.to_kj(float(d["value"])),
+            source=str(d["source"]),
+        )
 
 
 @dataclass(frozen=True)
@@ -340,16 +412,16 @@ class FamilyRecord:
 
     def to_dict(self, unit: EnergyUnit) -> dict[str, Any]:
         def conv(v: float | None) -> float | None:
-            return None if v is None or not np.isfinite(v) else round(unit.from_kj(v), 4)
+            return None if v is None or not np.isfinite(v) else round(unit.from_kj(float(v)), 4)
 
         return {
             "key": self.key,
             "ring_index": self.ring_index,
             "label": self.label,
             "members": list(self.members),
-            "population": round(self.population, 6),
+            "population": round(float(self.population), 6),
             "delta_g": conv(self.delta_g),
-            "equilibrium_constant": None if not np.isfinite(self.equilibrium_constant) else round(self.equilibrium_constant, 4),
+            "equilibrium_constant": None if not np.isfinite(self.equilibrium_constant) else round(float(self.equilibrium_constant), 4),
             "additive_energy": conv(self.additive_energy),
             "additive_terms": [t.to_dict(unit) for t in self.additive_terms],
             "model_energy": conv(self.model_energy),
@@ -357,6 +429,29 @@ class FamilyRecord:
             "additive_partial": bool(self.additive_notes),
             "additive_notes": list(self.additive_notes),
         }
+
+    @classmethod
+    def from_dict(cls, d: Mapping[str, Any], unit: EnergyUnit) -> "FamilyRecord":
+        """Inverse of :meth:`to_dict` (a null ΔG or K, written for an empty family, reads as infinity)."""
+
+        def energy(v: float | None, missing: float | None) -> float | None:
+            return missing if v is None else unit.to_kj(float(v))
+
+        k_eq = d["equilibrium_constant"]
+        return cls(
+            key=str(d["key"]),
+            ring_index=int(d["ring_index"]),
+            label=str(d["label"]),
+            members=tuple(int(m) for m in d["members"]),
+            population=float(d["population"]),
+            delta_g=energy(d["delta_g"], float("inf")),
+            equilibrium_constant=float("inf") if k_eq is None else float(k_eq),
+            additive_energy=energy(d["additive_energy"], None),
+            additive_terms=tuple(AdditiveTerm.from_dict(t, unit) for t in d["additive_terms"]),
+            model_energy=energy(d["model_energy"], None),
+            disagreement=bool(d["disagreement"]),
+            additive_notes=tuple(str(n) for n in d["additive_notes"]),
+        )
 
 
 @dataclass(frozen=True)
@@ -460,11 +555,13 @@ class Ensemble:
             "smiles": self.smiles,
             "charge": self.charge,
             "multiplicity": self.multiplicity,
+            "symbols": list(self.symbols),
+            "mol_block": self.mol_block,
             "method": self.method,
             "ranking": self.ranking,
             "temperature_K": self.temperature,
             "energy_unit": unit.value,
-            "window": round(unit.from_kj(self.window), 4),
+            "window": round(unit.from_kj(float(self.window)), 4),
             "ring_atoms": [list(r) for r in self.ring_atoms],
             "conformers": [c.to_dict(unit, self.symbols) for c in self.conformers],
             "families": [f.to_dict(unit) for f in self.families],
@@ -476,6 +573,104 @@ class Ensemble:
     def to_json(self, unit: EnergyUnit | str = EnergyUnit.KJ, indent: int | None = 2) -> str:
         """Serialize :meth:`to_dict` as a JSON string."""
         return json.dumps(self.to_dict(unit), indent=indent, allow_nan=False)
+
+    @classmethod
+    def from_dict(cls, d: Mapping[str, Any]) -> "Ensemble":
+        """Rebuild an ensemble from :meth:`to_dict`'s output (the exact inverse).
+
+        Energies are converted back to kJ/mol from the file's ``energy_unit``. Values keep
+        the precision the file was written with (energies to 1e-4, coordinates to 1e-5 Å),
+        so ``Ensemble.from_dict(e.to_dict(u)).to_dict(u) == e.to_dict(u)``.
+
+        Raises
+        ------
+        InputError
+            When ``d`` is not a chairbuild result of a layout this version reads.
+        """
+        if not isinstance(d, Mapping) or "schema" not in d:
+            raise InputError("not a chairbuild result: no 'schema' key")
+        schema = str(d["schema"])
+        if schema.split(".")[0] != SCHEMA_VERSION.split(".")[0] or "mol_block" not in d:
+            raise InputError(
+                f"chairbuild result of schema {schema} cannot be read back (schema {SCHEMA_VERSION} "
+                "and later minor versions carry the molecule block needed); re-run the analysis"
+            )
+        try:
+            unit = EnergyUnit.parse(d["energy_unit"])
+            return cls(
+                name=str(d["name"]),
+                smiles=str(d["smiles"]),
+                mol_block=str(d["mol_block"]),
+                symbols=tuple(str(x) for x in d["symbols"]),
+                ring_atoms=tuple(tuple(int(a) for a in r) for r in d["ring_atoms"]),
+                method=str(d["method"]),
+                ranking=str(d["ranking"]),
+                temperature=float(d["temperature_K"]),
+                window=unit.to_kj(float(d["window"])),
+                conformers=tuple(ConformerRecord.from_dict(c, unit) for c in d["conformers"]),
+                rejected=tuple(ConformerRecord.from_dict(c, unit) for c in d["rejected"]),
+                families=tuple(FamilyRecord.from_dict(f, unit) for f in d["families"]),
+                notes=tuple(str(n) for n in d["notes"]),
+                provenance=dict(d["provenance"]),
+                charge=int(d["charge"]),
+                multiplicity=int(d["multiplicity"]),
+            )
+        except (KeyError, TypeError, ValueError, IndexError) as exc:
+            raise InputError(f"malformed chairbuild result: {type(exc).__name__}: {exc}") from None
+
+    @classmethod
+    def from_json(cls, text: str) -> "Ensemble":
+        """Inverse of :meth:`to_json` for one ensemble (see :func:`load_json_all` for a list)."""
+        return cls.from_dict(_parse_json(text, "the JSON text"))
+
+
+def _parse_json(text: str, where: str) -> Any:
+    try:
+        return json.loads(text)
+    except json.JSONDecodeError as exc:
+        raise InputError(f"{where} is not valid JSON: {exc}") from None
+
+
+def _read_json_file(path: Any) -> Any:
+    p = Path(path)
+    try:
+        text = p.read_text(encoding="utf-8")
+    except OSError as exc:
+        raise InputError(f"cannot read {str(p)!r}: {exc.strerror or exc}") from None
+    return _parse_json(text, repr(str(p)))
+
+
+def load_json_all(path: Any) -> list[Ensemble]:
+    """Read a saved chairbuild JSON file (one result, or a list of them) as a list of ensembles.
+
+    Raises
+    ------
+    InputError
+        Unreadable file, invalid JSON, or not a chairbuild result.
+    """
+    data = _read_json_file(path)
+    items = data if isinstance(data, list) else [data]
+    return [Ensemble.from_dict(item) for item in items]
+
+
+def load_json(path: Any) -> Ensemble:
+    """Read a saved chairbuild JSON file holding one result (``chairbuild.load``).
+
+    Raises
+    ------
+    InputError
+        Unreadable file, invalid JSON, not a chairbuild result, or a file with several
+        results (read those with :func:`load_json_all`, ``chairbuild.load_all``).
+    """
+    data = _read_json_file(path)
+    if isinstance(data, list):
+        if len(data) != 1:
+            raise InputError(
+                f"{str(path)!r} holds {len(data)} results (one per diastereomer); read them with chairbuild.load_all"
+            )
+        data = data[0]
+    return Ensemble.from_dict(data)
+
 
 
 def _jsonable(value: Any) -> Any:
