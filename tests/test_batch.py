@@ -72,6 +72,7 @@ def test_mixed_batch_every_row_present_in_order_with_its_status():
     # a radical is analysed or refused depending on the ranking level's rules: the same as analyze() says
     expected[17] = _expected_status(records[17].payload)
     assert {i: RowStatus.parse(s) for i, s in zip(csv["index"], csv["status"])} == expected
+    assert list(parquet["status"]) == list(csv["status"])
     for i, status in expected.items():
         error = csv.loc[i, "error"]
         assert (error == "") == (status is RowStatus.OK), (i, error)
@@ -83,9 +84,10 @@ def test_mixed_batch_every_row_present_in_order_with_its_status():
 
     ens = analyze("CC1CCCCC1", name="methylcyclohexane", twist_boats=False, threads=1)
     chairs = sorted((f for f in ens.families if "chair" in f.key), key=lambda f: -f.population)
-    assert csv.loc[1, "n_conformers"] == len(ens.conformers)
-    assert csv.loc[1, "ring0_major_population"] == pytest.approx(chairs[0].population, abs=1e-12)
-    assert csv.loc[1, "ring0_second_dG_kj"] == pytest.approx(chairs[1].delta_g, abs=1e-9)
+    assert parquet.loc[1, "n_conformers"] == len(ens.conformers)
+    assert parquet.loc[1, "ring0_major_population"] == pytest.approx(chairs[0].population, abs=1e-12)
+    assert parquet.loc[1, "ring0_second_dG_kj"] == pytest.approx(chairs[1].delta_g, abs=1e-9)
+    assert float(csv.loc[1, "ring0_second_dG_kj"]) == parquet.loc[1, "ring0_second_dG_kj"]
     with open_store("mixed") as reader:
         assert reader.ensemble(1).to_dict()["families"] == ens.to_dict()["families"]
         assert reader.ensemble(12) is None
@@ -95,15 +97,15 @@ def test_mixed_batch_every_row_present_in_order_with_its_status():
     ok_rows = [i for i, s in expected.items() if s is RowStatus.OK]
     assert sorted(int(p.stem) for p in Path("mixed/molecules").glob("*.sdf")) == ok_rows
     n_sdf = sum(1 for _ in Chem.SDMolSupplier("mixed/molecules/00001.sdf", removeHs=False))
-    assert n_sdf == csv.loc[1, "n_conformers"]
+    assert n_sdf == parquet.loc[1, "n_conformers"]
 
 
 # --------------------------------------------------------------- reference run
 @pytest.fixture(scope="module")
 def reference(tmp_path_factory):
-    """An uninterrupted run of the small set on one local worker."""
+    """An uninterrupted run of the small set on one local worker (chairs only, to keep it short)."""
     folder = tmp_path_factory.mktemp("reference") / "out"
-    assert main(["batch", str(SMALL), "--out", str(folder), "--workers", "1", "--quiet"]) == 0
+    assert main(["batch", str(SMALL), "--out", str(folder), "--workers", "1", *FAST]) == 0
     return _tables(folder)
 
 
@@ -122,7 +124,7 @@ def _rows_done(store: Path) -> int:
 
 def test_killed_batch_resumes_to_the_uninterrupted_tables(reference):
     store = Path("killed") / STORE_NAME
-    cmd = [sys.executable, "-m", "chairbuild", "batch", str(SMALL), "--out", "killed", "--workers", "2", "--quiet"]
+    cmd = [sys.executable, "-m", "chairbuild", "batch", str(SMALL), "--out", "killed", "--workers", "2", *FAST]
     proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, start_new_session=True)
     try:
         deadline = time.monotonic() + 120
@@ -137,7 +139,7 @@ def test_killed_batch_resumes_to_the_uninterrupted_tables(reference):
             pass
     done = _rows_done(store)
     assert 3 <= done < 24, f"the kill came too late or too early ({done} rows done)"
-    assert main(["batch", str(SMALL), "--out", "killed", "--workers", "2", "--resume", "--quiet"]) == 0
+    assert main(["batch", str(SMALL), "--out", "killed", "--workers", "2", "--resume", *FAST]) == 0
     summary, families = _tables("killed")
     pd.testing.assert_frame_equal(summary, reference[0])
     pd.testing.assert_frame_equal(families, reference[1])
@@ -154,7 +156,7 @@ def test_dask_cluster_gives_the_same_tables_as_local_workers(reference):
     import chairbuild
 
     with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None) as cluster:
-        run = chairbuild.analyze_many(SMALL, out="cluster", scheduler=cluster.scheduler_address)
+        run = chairbuild.analyze_many(SMALL, out="cluster", scheduler=cluster.scheduler_address, twist_boats=False)
         results = list(run)
     assert [r.index for r in results] == list(range(24)) and all(r.ok for r in results)
     summary, families = _tables("cluster")
