@@ -368,13 +368,24 @@ def _dask_client(workers: int | None, scheduler: str | None):
             return Client(scheduler, timeout="30s"), None
         except (OSError, TimeoutError, ValueError) as exc:
             raise OptionError(f"cannot reach the Dask scheduler at {scheduler!r}: {exc}") from None
-    with dask.config.set({"distributed.scheduler.allowed-failures": 1, "distributed.worker.daemon": False}):
+    # no memory limit on the worker processes (the molecules run in their sandbox children, whose
+    # out-of-memory deaths are rows of their own), a slower system monitor, no profiler, no work
+    # stealing: all cut the CPU the cluster spends beside the analyses (measured in bench_batch.py)
+    settings = {
+        "distributed.scheduler.allowed-failures": 1,
+        "distributed.worker.daemon": False,
+        "distributed.admin.system-monitor.interval": "2s",
+        "distributed.worker.profile.enabled": False,  # the statistical profiler samples every 10 ms
+        "distributed.scheduler.work-stealing": False,  # tasks reach workers only as slots free up (queuing)
+    }
+    with dask.config.set(settings):
         cluster = LocalCluster(
             n_workers=workers,
             threads_per_worker=1,
             processes=True,
             dashboard_address=None,
             silence_logs=logging.ERROR,
+            memory_limit=0,
         )
         client = Client(cluster)
     return client, cluster

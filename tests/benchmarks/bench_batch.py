@@ -58,9 +58,10 @@ class _TreeSampler:
                     t = p.cpu_times()
                     self.cpu[p.pid] = t.user + t.system
                     self.rss[p.pid] = max(self.rss.get(p.pid, 0.0), p.memory_info().rss / 2**20)
-                    if p.pid not in self.kind:
-                        cmd = " ".join(p.cmdline())
-                        self.kind[p.pid] = "driver" if p.pid == self.me.pid else ("sandbox" if "chairbuild.batch.sandbox" in cmd else "worker")
+                    if p.pid == self.me.pid:
+                        self.kind[p.pid] = "driver"
+                    elif self.kind.get(p.pid) != "sandbox":  # a fresh child shows its parent's command until it execs
+                        self.kind[p.pid] = "sandbox" if "chairbuild.batch.sandbox" in " ".join(p.cmdline()) else "worker"
             except (psutil.NoSuchProcess, psutil.AccessDenied):
                 continue
 
@@ -80,6 +81,9 @@ class _TreeSampler:
 
     def total_cpu(self) -> float:
         return sum(v - self.cpu0.get(pid, 0.0) for pid, v in self.cpu.items())
+
+    def cpu_of(self, kind: str) -> float:
+        return sum(v - self.cpu0.get(pid, 0.0) for pid, v in self.cpu.items() if self.kind.get(pid) == kind)
 
     def peak(self, kind: str) -> float:
         return max((self.rss[p] for p, k in self.kind.items() if k == kind), default=float("nan"))
@@ -110,6 +114,8 @@ def _batch(smiles: list[str], names: list[str], workers: int) -> dict:
         "ok": int((df["status"] == "ok").sum()),
         "wall": wall,
         "tree_cpu": sampler.total_cpu(),
+        "cpu_by_kind": {k: sampler.cpu_of(k) for k in ("driver", "worker", "sandbox")},
+        "failed": [f"{r.name}: {r.status} ({r.error})" for r in df.itertuples() if r.status != "ok"],
         "sum_cpu": float(df["cpu_s"].sum()),
         "sum_wall": float(df["wall_s"].sum()),
         "peak_sandbox_mb": float(df["peak_rss_mb"].max()),
@@ -124,7 +130,7 @@ def _overheads(m: dict, fixed: dict, workers: int) -> tuple[float, float]:
     return wall_over, cpu_over
 
 
-def main() -> None:
+def main(only_mono: bool = False) -> None:
     rows = _read_set()
     smiles = [s for s, _ in rows]
     names = [n for _, n in rows]
@@ -135,6 +141,10 @@ def main() -> None:
     for w, f in fixed.items():
         print(f"fixed start-up with {w} worker(s) (one-molecule batch): wall {f['wall']:.2f} s, CPU {f['tree_cpu'] - f['sum_cpu']:.2f} s")
     m_mono = _batch([s for s, _ in mono], [n for _, n in mono], 1)
+    if only_mono:
+        print(f"mono: wall {m_mono['wall']:.2f} s, CPU {m_mono['tree_cpu']:.2f} s, analysis {m_mono['sum_cpu']:.2f} s, "
+              + ", ".join(f"{k} {v - fixed[1]['cpu_by_kind'][k]:.2f} s" for k, v in m_mono["cpu_by_kind"].items()))
+        return
     runs = {w: _batch(smiles, names, w) for w in (1, 2)}
     print()
     header = f"{'batch':34s} {'rows':>5s} {'ok':>4s} {'wall s':>7s} {'mol/min':>8s} {'mol/min/core':>12s} {'overhead wall':>13s} {'overhead CPU':>12s}"
@@ -144,6 +154,14 @@ def main() -> None:
         wall_over, cpu_over = _overheads(m, fixed[w], w)
         rate = 60.0 * m["n"] / m["wall"]
         print(f"{label:34s} {m['n']:5d} {m['ok']:4d} {m['wall']:7.1f} {rate:8.1f} {rate / w:12.1f} {100 * wall_over:12.1f}% {100 * cpu_over:11.1f}%")
+    print()
+    for label, m, w in (("monosubstituted, 1 worker", m_mono, 1), ("all 200, 1 worker", runs[1], 1), ("all 200, 2 workers", runs[2], 2)):
+        f = fixed[w]["cpu_by_kind"]
+        parts = ", ".join(f"{k} {m['cpu_by_kind'][k] - f[k]:.2f} s" for k in ("driver", "worker", "sandbox"))
+        print(f"CPU beyond the fixed start-up, {label}: {parts}; analysis itself {m['sum_cpu']:.2f} s")
+    for m in runs.values():
+        for line in m["failed"]:
+            print(f"not ok: {line}")
     speedup = runs[1]["wall"] / runs[2]["wall"]
     steady = (runs[1]["wall"] - fixed[1]["wall"]) / (runs[2]["wall"] - fixed[2]["wall"])
     print()
@@ -162,4 +180,6 @@ def main() -> None:
 
 
 if __name__ == "__main__":
-    main()
+    import sys
+
+    main(only_mono="--mono" in sys.argv[1:])
