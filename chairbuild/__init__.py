@@ -8,14 +8,16 @@ and pulls in no heavy library:
   diastereomer when ``enumerate_stereo=True``);
 * :func:`chairbuild.view` shows an ensemble in a notebook;
 * :func:`chairbuild.load` reads a saved JSON result back into an ``Ensemble``
-  (:func:`chairbuild.load_all` for a file with several, one per diastereomer).
+  (:func:`chairbuild.load_all` for a file with several, one per diastereomer);
+* :func:`chairbuild.analyze_many` analyses a list or file of molecules through a batch
+  store, and :func:`chairbuild.open_store` reads such a store back.
 """
 
 from __future__ import annotations
 
 __version__ = "0.1.0"
 
-__all__ = ["analyze", "analyze_all", "view", "load", "load_all", "__version__"]
+__all__ = ["analyze", "analyze_all", "view", "load", "load_all", "analyze_many", "open_store", "__version__"]
 
 
 def __getattr__(name: str):
@@ -39,4 +41,8 @@ def __getattr__(name: str):
         from chairbuild.viewer import view
 
         return view
+    if name in ("analyze_many", "open_store"):
+        from chairbuild import batch
+
+        return getattr(batch, name)
     raise AttributeError(f"module 'chairbuild' has no attribute {name!r}")

@@ -1,4 +1,4 @@
-"""Command line: ``chairbuild analyze INPUT [options]`` and ``chairbuild demo``.
+"""Command line: ``chairbuild analyze INPUT [options]``, ``chairbuild batch INPUT --out DIR`` and ``chairbuild demo``.
 
 Bad input or options print one message naming the problem and exit with code 2; no
 traceback. Output files are checked before any work starts and written atomically.
@@ -131,6 +131,9 @@ def build_parser() -> argparse.ArgumentParser:
         "--overwrite", action="store_true", help="replace the rank_*.xyz files of an earlier run in an -o directory"
     )
     _add_analysis_options(an)
+    from chairbuild.batch.cli import add_batch_parser
+
+    add_batch_parser(sub, _add_analysis_options, _positive_int, _positive_float)
     demo = sub.add_parser("demo", help="run the built-in demonstration scenario")
     demo.add_argument("--output-dir", default="demo-output", help="where the demo writes its files (default demo-output)")
     demo.add_argument("--quiet", action="store_true", help="no progress bars and no 'wrote FILE' lines")
@@ -224,6 +227,10 @@ def main(argv: Sequence[str] | None = None) -> int:
         with command_line():
             if args.command == "analyze":
                 return _run_analyze(args)
+            if args.command == "batch":
+                from chairbuild.batch.cli import run_batch_command
+
+                return run_batch_command(args, _analysis_kwargs(args))
             if args.command == "demo":
                 from chairbuild.demo import run_demo
 
