@@ -3,8 +3,8 @@
 :func:`write_report` writes a single HTML file that opens without a network: the
 tables, the plots (PNG, base64 inline), the additive-estimate breakdown, notes,
 method and provenance, the multi-conformer SDF and an interactive 3D viewer. The viewer
-is 3Dmol.js, embedded inline from the copy fetched at set-up
-(``python -m chairbuild.assets fetch``); only when that copy is missing does the report
+is 3Dmol.js, embedded inline from the copy bundled into the package at build time
+(:mod:`chairbuild.assets`); only when that copy is missing does the report
 load the same pinned version from a CDN, and it then says so at the top of the page.
 
 The viewer replays the scene layers of :func:`chairbuild.viewer.scene_layers` with a
@@ -409,8 +409,9 @@ def _library_tag() -> tuple[str, str]:
         return f"<script>/* 3Dmol.js {THREEDMOL_VERSION}, BSD-3-Clause, embedded */\n{js}\n</script>", ""
     url = cdn_url()
     notice = (
-        f'<div class="network"><b>{NETWORK_NOTICE}.</b> 3Dmol.js {THREEDMOL_VERSION} was not installed with '
-        "chairbuild (run <code>python -m chairbuild.assets fetch</code>, which needs npm), so this page loads it "
+        f'<div class="network"><b>{NETWORK_NOTICE}.</b> 3Dmol.js {THREEDMOL_VERSION} was not bundled when '
+        "chairbuild was installed (the build needs npm: reinstall with npm on the PATH, or run "
+        "<code>python -m chairbuild.assets fetch</code>), so this page loads it "
         f"from <code>{_e(url)}</code>. Without a network the 3D view stays empty; the tables, plots and the "
         "embedded SDF work offline.</div>"
     )

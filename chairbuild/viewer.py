@@ -31,6 +31,7 @@ ring atoms two positions away, on the same face of the ring) are drawn as pink s
 from __future__ import annotations
 
 import enum
+import warnings
 from dataclasses import dataclass, replace
 from typing import Any, Sequence
 
@@ -664,10 +665,6 @@ def view(
     ------
     InputError, OptionError
     """
-    import py3Dmol
-
-    from chairbuild.assets import cdn_url
-
     if int(width) <= 0 or int(height) <= 0:
         raise OptionError(f"width and height must be positive, got {width} x {height}")
     calls = scene_calls(
@@ -679,10 +676,43 @@ def view(
         legend=legend,
         height=int(height),
     )
-    v = py3Dmol.view(width=int(width), height=int(height), js=cdn_url())
+    v = _py3dmol_view(int(width), int(height))
     for name, args in calls:
         getattr(v, name)(*args)
     return v
+
+
+_INLINE_MARK = "chairbuild-inline-3dmol"
+
+
+def _py3dmol_view(width: int, height: int):
+    """An empty py3Dmol view whose page loads the bundled 3Dmol.js, inlined (no network).
+
+    py3Dmol's page template loads its ``js`` URL with ``loadScriptAsync('<url>')``; that
+    call is replaced by :func:`chairbuild.assets.inline_loader_js` (a compressed copy,
+    about 0.21 MB per view). Should the template differ, a ``data:`` URL of the whole
+    build is passed instead (about 0.72 MB per view). Without the asset the view loads
+    the pinned version from the CDN, with a warning.
+    """
+    import py3Dmol
+
+    from chairbuild.assets import cdn_url, data_url, inline_loader_js
+
+    loader = inline_loader_js("loadScriptAsync")
+    if loader is None:
+        warnings.warn(
+            f"3Dmol.js was not bundled with chairbuild (npm was missing when it was installed); "
+            f"this view loads it from {cdn_url()} and needs a network",
+            UserWarning,
+            stacklevel=3,
+        )
+        return py3Dmol.view(width=width, height=height, js=cdn_url())
+    v = py3Dmol.view(width=width, height=height, js=_INLINE_MARK)
+    call = f"loadScriptAsync('{_INLINE_MARK}')"
+    if v.startjs.count(call) == 1 and "UNIQUEID" not in loader:
+        v.startjs = v.startjs.replace(call, loader)
+        return v
+    return py3Dmol.view(width=width, height=height, js=data_url())
 
 
 class ConformerBrowser:

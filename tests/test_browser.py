@@ -101,3 +101,30 @@ def test_canvas_shows_a_molecule(rendered):
     canvas = img[y : y + h, x : x + w]
     pink = (canvas[..., 0] > 0.6) & (canvas[..., 1] < 0.35) & (canvas[..., 2] > 0.3) & (canvas[..., 2] < 0.65)
     assert pink.sum() > 30
+
+
+def test_notebook_view_draws_offline_from_the_bundled_script(tmp_path):
+    """The HTML of a py3Dmol view, opened as a page: it names no network URL and still draws."""
+    from matplotlib.image import imread
+
+    from chairbuild.assets import js_path
+    from chairbuild.pipeline import analyze
+    from chairbuild.viewer import view
+
+    exe = _chromium()
+    if exe is None:
+        pytest.skip("chromium is not installed")
+    if js_path() is None:
+        pytest.skip("3Dmol.js asset missing; reinstall chairbuild with npm on the PATH")
+    html_text = view(analyze(TBU_METHYL), 0, width=600, height=400).write_html()
+    assert not re.search(r"https?://", html_text)
+    page = tmp_path / "view.html"
+    page.write_text(f"<!DOCTYPE html><html><body style='margin:0'>{html_text}</body></html>", encoding="utf-8")
+    shot = tmp_path / "view.png"
+    run = _run_chromium(exe, page.resolve().as_uri(), tmp_path / "profile", f"--screenshot={shot}")
+    assert run.returncode == 0 and shot.is_file(), run.stderr[-2000:]
+    img = imread(str(shot))[:400, :600, :3]
+    grey = img[100:300, 150:450].mean(axis=2)
+    assert (grey < 0.8).mean() > 0.01  # sticks drawn, not a blank canvas or the load-failure text
+    pink = (img[..., 0] > 0.6) & (img[..., 1] < 0.35) & (img[..., 2] > 0.3) & (img[..., 2] < 0.65)
+    assert pink.sum() > 30  # the syn-axial hydrogens of the locked chair
