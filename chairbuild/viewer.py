@@ -55,11 +55,13 @@ __all__ = [
     "hydrogen_atoms",
     "legend_entries",
     "title_text",
+    "overlay_title",
     "aligned_ensemble",
     "kabsch_rmsd",
     "scene_layers",
     "compose",
     "compose_config",
+    "overlay_config",
     "scene_calls",
     "view",
     "ConformerBrowser",
@@ -109,6 +111,8 @@ SYN_AXIAL_H_COLOUR = "#db2777"
 TORSION_COLOUR = "#e2e8f0"
 _TORSION_FONT = "#1e293b"
 _OVERLAY_COLOURS = ("#2563eb", "#9333ea", "#ca8a04", "#0891b2", "#be123c", "#4d7c0f", "#7c2d12", "#334155")
+_OVERLAY_RADIUS = 0.06
+_OVERLAY_OPACITY = 0.55
 _LABEL_OFFSET_A = 0.35
 _VIEW_TILT_DEG = 20.0
 _H_MEANING = "axial H syn-1,3 to an axial substituent"
@@ -332,6 +336,12 @@ def title_text(result: Ensemble, conformer: int = 0) -> str:
     )
 
 
+def overlay_title(result: Ensemble, conformer: int = 0) -> str:
+    """Title of the overlay of every conformer, labelled on one of them."""
+    rec = _conformer(result, conformer)
+    return f"{result.name} | overlay of {len(result.conformers)} conformers on the ring atoms | labelled: conformer {rec.id}"
+
+
 # --------------------------------------------------------------------------- alignment
 def _kabsch(mobile: np.ndarray, target: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Rotation R and centroids so that (x - c_m) @ R.T + c_t best fits target."""
@@ -493,7 +503,7 @@ def scene_layers(
         ``torsions`` (label calls), ``title`` (text), ``legend`` (entries for the
         position labels) and ``has_relevant_h``.
     """
-    rec = _conformer(result, conformer)
+    _conformer(result, conformer)
     k = int(conformer) % len(result.conformers)
     ens = aligned if aligned is not None else aligned_ensemble(result, reference=0)
     order = list(range(len(ens.conformers))) if overlay else [k]
@@ -523,9 +533,8 @@ def scene_layers(
                 continue
             colour = _OVERLAY_COLOURS[m % len(_OVERLAY_COLOURS)]
             others.append(("setStyle", [{"model": pos}, dict(_HIDDEN)]))
-            others.append(
-                ("setStyle", [{"model": pos, "index": heavy}, {"stick": {"radius": 0.06, "color": colour, "opacity": 0.55}}])
-            )
+            stick = {"radius": _OVERLAY_RADIUS, "color": colour, "opacity": _OVERLAY_OPACITY}
+            others.append(("setStyle", [{"model": pos, "index": heavy}, {"stick": stick}]))
     styles = {
         HydrogenMode.RELEVANT.value: base + hide_h + mark_h + others,
         HydrogenMode.ALL.value: base + mark_h + others,
@@ -534,9 +543,7 @@ def scene_layers(
     labels = scene_labels(ens, k, torsion_labels=True)
     position_labels = [("addLabel", [text, spec]) for text, spec in _merged_position_labels(labels)]
     torsions = [("addLabel", [lab.text, _label_spec(lab)]) for lab in labels if lab.kind is LabelKind.TORSION]
-    title = title_text(result, k)
-    if overlay:
-        title = f"{result.name} | overlay of {len(order)} conformers on the ring atoms | labelled: conformer {rec.id}"
+    title = overlay_title(result, k) if overlay else title_text(result, k)
     legend = [_entry_dict(e) for e in legend_entries(labels, syn_axial_hydrogens=False) if e.text not in ("H", "±n°")]
     return {
         "models": order,
@@ -602,6 +609,11 @@ def compose_config() -> dict[str, Any]:
         "torsion_entry": _entry_dict(LegendEntry("±n°", TORSION_COLOUR, _TORSION_MEANING)),
         "torsion_font": _TORSION_FONT,
     }
+
+
+def overlay_config() -> dict[str, Any]:
+    """How :func:`scene_layers` draws the other conformers of an overlay (the report rebuilds them in JS)."""
+    return {"colours": list(_OVERLAY_COLOURS), "radius": _OVERLAY_RADIUS, "opacity": _OVERLAY_OPACITY}
 
 
 def scene_calls(
