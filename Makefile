@@ -8,11 +8,11 @@ STAMP := $(VENV)/.installed
 
 venv: $(STAMP)
 
-$(STAMP): pyproject.toml
+$(STAMP): pyproject.toml setup.py
 	$(PYTHON) -m venv $(VENV)
 	$(PY) -m pip install --quiet --upgrade pip
-	$(PY) -m pip install --quiet -e '.[test]'
-	$(PY) -m chairbuild.assets fetch || echo "warning: 3Dmol.js not fetched (npm missing?); HTML reports will load it from the network"
+	$(PY) -m pip install --quiet -e '.[test]'  # setup.py bundles 3Dmol.js with npm pack
+	-$(PY) -m chairbuild.assets status
 	touch $(STAMP)
 
 demo: $(STAMP)

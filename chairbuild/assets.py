@@ -1,11 +1,14 @@
-"""Browser assets of the HTML report: the 3Dmol.js build, fetched once at set-up.
+"""Browser assets of the HTML report and the notebook viewer: the 3Dmol.js build.
 
-The HTML report embeds 3Dmol.js inline so that the file opens without a network. The
-library is not part of this repository: ``python -m chairbuild.assets fetch`` runs
+The HTML report embeds 3Dmol.js inline so that the file opens without a network, and the
+notebook viewer inlines it into each view. The library is not part of this repository:
+it is bundled into the package when the package is built. ``setup.py`` (run by every
+``pip install .``, ``pip install -e .`` and wheel build) calls :func:`bundle`, which runs
 ``npm pack 3dmol@<PINNED_VERSION>`` into a temporary directory, extracts the minified
-build into ``chairbuild/_assets/`` (git-ignored) and copies the package's license file
-next to it. When the asset is missing (npm was not available at set-up), the report
-says so visibly and loads the same pinned version from a CDN instead.
+build into ``chairbuild/_assets/`` of the package being built (git-ignored in the source
+tree) and copies the package's license file next to it. Without npm the build still
+succeeds, without the asset; the report then says so visibly and loads the same pinned
+version from a CDN, and the notebook viewer warns once and does the same.
 
 Usage::
 
@@ -16,7 +19,10 @@ Usage::
 from __future__ import annotations
 
 import argparse
+import base64
+import gzip
 import json
+import os
 import shutil
 import subprocess
 import sys
@@ -35,7 +41,11 @@ __all__ = [
     "js_path",
     "license_path",
     "read_js",
+    "data_url",
+    "inline_loader_js",
     "fetch",
+    "bundle",
+    "NPM_ENV",
     "main",
 ]
 
@@ -43,6 +53,9 @@ __all__ = [
 THREEDMOL_VERSION = "2.5.5"
 #: SPDX identifier of the 3Dmol.js license, as read from the package's LICENSE file.
 THREEDMOL_LICENSE = "BSD-3-Clause"
+#: Environment variable naming the npm executable the build uses; set it to an empty
+#: string to build without the asset (for example on a machine with npm but no network).
+NPM_ENV = "CHAIRBUILD_NPM"
 #: Where the fetched files are kept (git-ignored).
 ASSET_DIR = Path(__file__).resolve().parent / "_assets"
 #: File name of the minified build inside :data:`ASSET_DIR`.
@@ -67,9 +80,15 @@ def _asset_dir() -> Path:
     return Path(sys.modules[__name__].ASSET_DIR)
 
 
-def js_path() -> Path | None:
-    """Path of the fetched 3Dmol.js build of the pinned version, or None when it is missing."""
-    folder = _asset_dir()
+def js_path(folder: str | os.PathLike | None = None) -> Path | None:
+    """Path of the fetched 3Dmol.js build of the pinned version, or None when it is missing.
+
+    Parameters
+    ----------
+    folder : path-like, optional
+        Folder to look in (default :data:`ASSET_DIR`).
+    """
+    folder = _asset_dir() if folder is None else Path(folder)
     js = folder / JS_NAME
     stamp = folder / _STAMP_NAME
     if not js.is_file() or not stamp.is_file():
@@ -93,7 +112,59 @@ def read_js() -> str | None:
     return None if path is None else path.read_text(encoding="utf-8")
 
 
-def fetch(version: str = THREEDMOL_VERSION, npm: str = "npm", quiet: bool = False) -> Path:
+def _compressed_base64(path: Path) -> str:
+    stat = path.stat()
+    key = (str(path), stat.st_mtime_ns, stat.st_size)
+    if _COMPRESSED.get("key") != key:
+        packed = gzip.compress(path.read_bytes(), compresslevel=9, mtime=0)
+        _COMPRESSED.update(key=key, text=base64.b64encode(packed).decode("ascii"))
+    return _COMPRESSED["text"]
+
+
+_COMPRESSED: dict[str, object] = {}
+
+
+def data_url() -> str | None:
+    """The bundled build as a ``data:`` URL (the whole script, base64), or None when missing."""
+    path = js_path()
+    if path is None:
+        return None
+    return "data:text/javascript;base64," + base64.b64encode(path.read_bytes()).decode("ascii")
+
+
+def inline_loader_js(load_script: str) -> str | None:
+    """A JavaScript expression that loads the bundled build from a compressed copy inlined in it.
+
+    The expression evaluates to a Promise: it decodes the gzip-compressed, base64-encoded
+    build (about 0.21 MB of text for the 0.54 MB script) with the browser's
+    ``DecompressionStream`` and passes a ``blob:`` URL of the script to ``load_script``,
+    the name of a page function that takes a script URL and returns a Promise (the
+    loader of a py3Dmol view). Nothing is fetched from the network.
+
+    Returns
+    -------
+    str or None
+        None when the asset is missing.
+    """
+    path = js_path()
+    if path is None:
+        return None
+    payload = _compressed_base64(path)
+    return (
+        '(function () { var s = atob("' + payload + '"), b = new Uint8Array(s.length);'
+        " for (var i = 0; i < s.length; i++) b[i] = s.charCodeAt(i);"
+        ' return new Response(new Blob([b]).stream().pipeThrough(new DecompressionStream("gzip"))).blob()'
+        ".then(function (t) { return " + load_script
+        + '(URL.createObjectURL(new Blob([t], {type: "text/javascript"}))); }); })()'
+    )
+
+
+def fetch(
+    version: str = THREEDMOL_VERSION,
+    npm: str = "npm",
+    quiet: bool = False,
+    target: str | os.PathLike | None = None,
+) -> Path:
     """Download 3Dmol.js with ``npm pack`` and extract its minified build into :data:`ASSET_DIR`.
 
     Parameters
@@ -104,6 +175,9 @@ def fetch(version: str = THREEDMOL_VERSION, npm: str = "npm", quiet: bool = Fals
         The npm executable.
     quiet : bool
         Print nothing on success.
+    target : path-like, optional
+        Folder to extract into (default :data:`ASSET_DIR`); the package build passes the
+        package's folder in the build tree.
 
     Returns
     -------
@@ -121,7 +195,7 @@ def fetch(version: str = THREEDMOL_VERSION, npm: str = "npm", quiet: bool = Fals
             f"npm not found; install Node.js/npm and run 'python -m chairbuild.assets fetch' "
             f"(reports will load 3Dmol.js {version} from {cdn_url(version)} until then)"
         )
-    target = _asset_dir()
+    target = _asset_dir() if target is None else Path(target)
     with tempfile.TemporaryDirectory(prefix="chairbuild-assets-") as tmp:
         proc = subprocess.run(
             [exe, "pack", f"3dmol@{version}", "--silent"],
@@ -131,7 +205,10 @@ def fetch(version: str = THREEDMOL_VERSION, npm: str = "npm", quiet: bool = Fals
             check=False,
         )
         if proc.returncode != 0:
-            raise ChairbuildError(f"'npm pack 3dmol@{version}' failed: {proc.stderr.strip() or proc.stdout.strip()}")
+            raise ChairbuildError(
+                f"'npm pack 3dmol@{version}' failed (exit {proc.returncode}): "
+                f"{proc.stderr.strip() or proc.stdout.strip() or 'no output'}"
+            )
         tarballs = sorted(Path(tmp).glob("3dmol-*.tgz"))
         if not tarballs:
             raise ChairbuildError(f"'npm pack 3dmol@{version}' wrote no tarball")
@@ -154,6 +231,57 @@ def fetch(version: str = THREEDMOL_VERSION, npm: str = "npm", quiet: bool = Fals
     js = target / JS_NAME
     if not quiet:
         print(f"3Dmol.js {version} ({THREEDMOL_LICENSE}) extracted to {js}")
+    return js
+
+
+def bundle(target: str | os.PathLike, npm: str | None = None) -> Path | None:
+    """Build step: put the pinned 3Dmol.js build into ``target`` (called by ``setup.py``).
+
+    Keeps an asset of the pinned version already in ``target`` (copied from the source
+    tree, or fetched by an earlier editable install); otherwise runs :func:`fetch` into
+    ``target``. When npm is not found, prints a notice on stderr and returns None: the
+    package then builds without the asset and the report falls back to the CDN, saying so.
+
+    Parameters
+    ----------
+    target : path-like
+        The ``chairbuild/_assets`` folder of the package being built.
+    npm : str, optional
+        npm executable; default: the environment variable :data:`NPM_ENV`, else ``npm``.
+        An empty string means "build without npm".
+
+    Returns
+    -------
+    pathlib.Path or None
+        Path of the bundled ``3Dmol-min.js``, or None when npm is missing.
+
+    Raises
+    ------
+    ChairbuildError
+        npm is there but ``npm pack`` fails (no network, unknown version): the build stops
+        rather than silently producing a package whose reports need the network.
+    """
+    target = Path(target)
+    present = js_path(target)
+    if present is not None:
+        print(f"chairbuild build: 3Dmol.js {THREEDMOL_VERSION} already in {target}", file=sys.stderr)
+        return present
+    exe = os.environ.get(NPM_ENV, "npm") if npm is None else npm
+    if not exe or shutil.which(exe) is None:
+        print(
+            f"chairbuild build: NOTICE: npm not found ({NPM_ENV}={exe!r}); 3Dmol.js {THREEDMOL_VERSION} is not "
+            f"bundled, so HTML reports and notebook views will load it from {cdn_url()} and say so. "
+            "Install Node.js/npm and reinstall chairbuild to bundle it.",
+            file=sys.stderr,
+        )
+        return None
+    try:
+        js = fetch(npm=exe, quiet=True, target=target)
+    except ChairbuildError as exc:
+        raise ChairbuildError(
+            f"{exc}; to build without the bundled 3D viewer, set {NPM_ENV}= (empty) in the environment"
+        ) from exc
+    print(f"chairbuild build: 3Dmol.js {THREEDMOL_VERSION} ({THREEDMOL_LICENSE}) bundled into {target}", file=sys.stderr)
     return js
 
 

@@ -3,13 +3,16 @@
 :func:`write_report` writes a single HTML file that opens without a network: the
 tables, the plots (PNG, base64 inline), the additive-estimate breakdown, notes,
 method and provenance, the multi-conformer SDF and an interactive 3D viewer. The viewer
-is 3Dmol.js, embedded inline from the copy fetched at set-up
-(``python -m chairbuild.assets fetch``); only when that copy is missing does the report
+is 3Dmol.js, embedded inline from the copy bundled into the package at build time
+(:mod:`chairbuild.assets`); only when that copy is missing does the report
 load the same pinned version from a CDN, and it then says so at the top of the page.
 
 The viewer replays the scene layers of :func:`chairbuild.viewer.scene_layers` with a
 JavaScript twin of :func:`chairbuild.viewer.compose`, so labels, colours and legend
-are the ones the notebook viewer shows. The report only reads the ensembles.
+are the ones the notebook viewer shows. Its data is packed by
+:mod:`chairbuild.report_pack` (the topology once, coordinates per conformer), so the file
+grows with the number of conformers by their coordinates, properties and table rows
+only. The report only reads the ensembles.
 """
 
 from __future__ import annotations
@@ -87,15 +90,14 @@ function cbSetup(idx) {
     box.innerHTML = "<p style='padding:1em;color:#b91c1c'>3D viewer unavailable: 3Dmol.js could not be loaded.</p>";
     return;
   }
-  var blocks = data.sdf.split("$$$$\n").filter(function (b) { return b.trim().length; })
-                       .map(function (b) { return b.replace(/^\n+/, "") + "$$$$\n"; });
   var viewer = $3Dmol.createViewer(box, {backgroundColor: "white"});
   var state = {k: 0, overlay: false, mode: "relevant", torsions: false, drawn: false};
   function draw() {
     var keep = state.drawn, view = keep ? viewer.getView() : null;
     viewer.clear();
-    var L = data.layers[state.overlay ? "overlay" : "single"][state.k];
-    L.models.forEach(function (m) { viewer.addModel(blocks[m], "sdf"); });
+    var L = cbLayer(data.single[state.k], data.pool);
+    if (state.overlay) L = cbOverlay(L, state.k, data.n, data.overlay);
+    L.models.forEach(function (m) { viewer.addModel(cbRecord(data.sdf, m), "sdf"); });
     cbCompose(L, state.mode, state.torsions, data.height, data.config, keep).forEach(function (c) {
       viewer[c[0]].apply(viewer, c[1]);
     });
@@ -117,7 +119,7 @@ function cbSetup(idx) {
   on("cb-reset", "click", function () { state.drawn = false; draw(); });
   on("cb-sdf", "click", function () {
     var a = document.createElement("a");
-    a.href = URL.createObjectURL(new Blob([data.sdf], {type: "chemical/x-mdl-sdfile"}));
+    a.href = URL.createObjectURL(new Blob([cbSdf(data.sdf)], {type: "chemical/x-mdl-sdfile"}));
     a.download = data.file_name;
     document.body.appendChild(a); a.click(); a.remove();
   });
@@ -127,7 +129,7 @@ function cbSetup(idx) {
 
 
 def caveat_text(ensembles: Sequence[Ensemble]) -> str:
-    """The model-estimate caveat shown at the top of the report and in each section."""
+    """The model-estimate caveat, shown once at the top of the report (each section links to it)."""
     methods = ", ".join(sorted({e.method for e in ensembles})) or "the force field"
     return (
         f"These are model estimates ({methods}): energies, populations and ring preferences of "
@@ -295,24 +297,11 @@ def _legend_html() -> str:
 
 
 def _viewer_html(ens: Ensemble, idx: int) -> str:
-    from chairbuild.output import sdf_text
-    from chairbuild.viewer import aligned_ensemble, compose_config, scene_layers
+    from chairbuild.report_pack import viewer_data
 
     if not ens.conformers:
         return "<p>No conformer to show.</p>"
-    aligned = aligned_ensemble(ens, reference=0)
-    n = len(ens.conformers)
-    data = {
-        "n": n,
-        "height": _VIEWER_HEIGHT,
-        "sdf": sdf_text(aligned),
-        "file_name": f"{_slug(ens.name)}.sdf",
-        "config": compose_config(),
-        "layers": {
-            "single": [scene_layers(ens, k, overlay=False, aligned=aligned) for k in range(n)],
-            "overlay": [scene_layers(ens, k, overlay=True, aligned=aligned) for k in range(n)],
-        },
-    }
+    data = viewer_data(ens, _VIEWER_HEIGHT, f"{_slug(ens.name)}.sdf")
     options = "".join(
         f'<option value="{k}">conformer {rec.id}: {"ΔG" if ens.ranking == "free_energy" else "ΔE"} '
         f'{rec.relative_energy:.2f} kJ/mol, {100 * rec.population:.1f} %</option>'
@@ -361,7 +350,7 @@ def _provenance_html(ens: Ensemble) -> str:
     )
 
 
-def _section(ens: Ensemble, idx: int, caveat: str) -> str:
+def _section(ens: Ensemble, idx: int) -> str:
     from chairbuild.output import format_table
     from chairbuild.plots import additive_vs_model_figure, energy_population_figure, family_temperature_figure
 
@@ -383,7 +372,7 @@ def _section(ens: Ensemble, idx: int, caveat: str) -> str:
 <p><code>{_e(ens.smiles)}</code> — {len(ens.conformers)} conformer(s), {_e(ens.method)},
 ranked by {_e(ens.ranking.replace('_', ' '))}, T = {ens.temperature:.2f} K,
 total charge {ens.charge}, multiplicity {ens.multiplicity}; atom numbers are 0-based</p>
-<div class="caveat"><b>Model estimates.</b> {_e(caveat)}</div>
+<p><small><b>Model estimates</b>: see <a href="#cb-caveat">the note at the top</a>.</small></p>
 <h3>Conformers (energy order)</h3>
 {_conformer_table(ens)}
 <h3>3D view</h3>
@@ -413,8 +402,9 @@ def _library_tag() -> tuple[str, str]:
         return f"<script>/* 3Dmol.js {THREEDMOL_VERSION}, BSD-3-Clause, embedded */\n{js}\n</script>", ""
     url = cdn_url()
     notice = (
-        f'<div class="network"><b>{NETWORK_NOTICE}.</b> 3Dmol.js {THREEDMOL_VERSION} was not installed with '
-        "chairbuild (run <code>python -m chairbuild.assets fetch</code>, which needs npm), so this page loads it "
+        f'<div class="network"><b>{NETWORK_NOTICE}.</b> 3Dmol.js {THREEDMOL_VERSION} was not bundled when '
+        "chairbuild was installed (the build needs npm: reinstall with npm on the PATH, or run "
+        "<code>python -m chairbuild.assets fetch</code>), so this page loads it "
         f"from <code>{_e(url)}</code>. Without a network the 3D view stays empty; the tables, plots and the "
         "embedded SDF work offline.</div>"
     )
@@ -433,6 +423,8 @@ def _as_list(ensembles: Ensemble | Iterable[Ensemble]) -> list[Ensemble]:
 
 def report_html(ensembles: Ensemble | Iterable[Ensemble], title: str | None = None) -> str:
     """The report as one HTML string (see :func:`write_report`)."""
+    from chairbuild.report_pack import PACK_JS
+
     items = _as_list(ensembles)
     title = title or ("chairbuild report: " + ", ".join(e.name for e in items[:3]) + (" …" if len(items) > 3 else ""))
     caveat = caveat_text(items)
@@ -441,19 +433,19 @@ def report_html(ensembles: Ensemble | Iterable[Ensemble], title: str | None = No
     nav = ""
     if len(items) > 1:
         nav = "<nav>" + "".join(f'<a href="#cb-ens-{i}">{_e(e.name)}</a>' for i, e in enumerate(items)) + "</nav>"
-    sections = "".join(_section(ens, i, caveat) for i, ens in enumerate(items))
+    sections = "".join(_section(ens, i) for i, ens in enumerate(items))
     return f"""<!DOCTYPE html>
 <html lang="en"><head><meta charset="utf-8">
 <meta name="viewport" content="width=device-width, initial-scale=1">
 <title>{_e(title)}</title>
 <style>{_CSS}</style>
 {library}
-<script>{_JS}</script>
+<script>{PACK_JS}{_JS}</script>
 </head><body><main>
 <h1>{_e(title)}</h1>
 <p><small>Written {stamp} by chairbuild.</small></p>
 {notice}
-<div class="caveat"><b>Read this first.</b> {_e(caveat)}</div>
+<div class="caveat" id="cb-caveat"><b>Read this first.</b> {_e(caveat)}</div>
 <h2>Summary</h2>
 {_summary_rows(items)}
 {nav}

@@ -31,6 +31,7 @@ ring atoms two positions away, on the same face of the ring) are drawn as pink s
 from __future__ import annotations
 
 import enum
+import warnings
 from dataclasses import dataclass, replace
 from typing import Any, Sequence
 
@@ -54,11 +55,13 @@ __all__ = [
     "hydrogen_atoms",
     "legend_entries",
     "title_text",
+    "overlay_title",
     "aligned_ensemble",
     "kabsch_rmsd",
     "scene_layers",
     "compose",
     "compose_config",
+    "overlay_config",
     "scene_calls",
     "view",
     "ConformerBrowser",
@@ -108,6 +111,8 @@ SYN_AXIAL_H_COLOUR = "#db2777"
 TORSION_COLOUR = "#e2e8f0"
 _TORSION_FONT = "#1e293b"
 _OVERLAY_COLOURS = ("#2563eb", "#9333ea", "#ca8a04", "#0891b2", "#be123c", "#4d7c0f", "#7c2d12", "#334155")
+_OVERLAY_RADIUS = 0.06
+_OVERLAY_OPACITY = 0.55
 _LABEL_OFFSET_A = 0.35
 _VIEW_TILT_DEG = 20.0
 _H_MEANING = "axial H syn-1,3 to an axial substituent"
@@ -331,6 +336,12 @@ def title_text(result: Ensemble, conformer: int = 0) -> str:
     )
 
 
+def overlay_title(result: Ensemble, conformer: int = 0) -> str:
+    """Title of the overlay of every conformer, labelled on one of them."""
+    rec = _conformer(result, conformer)
+    return f"{result.name} | overlay of {len(result.conformers)} conformers on the ring atoms | labelled: conformer {rec.id}"
+
+
 # --------------------------------------------------------------------------- alignment
 def _kabsch(mobile: np.ndarray, target: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Rotation R and centroids so that (x - c_m) @ R.T + c_t best fits target."""
@@ -492,7 +503,7 @@ def scene_layers(
         ``torsions`` (label calls), ``title`` (text), ``legend`` (entries for the
         position labels) and ``has_relevant_h``.
     """
-    rec = _conformer(result, conformer)
+    _conformer(result, conformer)
     k = int(conformer) % len(result.conformers)
     ens = aligned if aligned is not None else aligned_ensemble(result, reference=0)
     order = list(range(len(ens.conformers))) if overlay else [k]
@@ -522,9 +533,8 @@ def scene_layers(
                 continue
             colour = _OVERLAY_COLOURS[m % len(_OVERLAY_COLOURS)]
             others.append(("setStyle", [{"model": pos}, dict(_HIDDEN)]))
-            others.append(
-                ("setStyle", [{"model": pos, "index": heavy}, {"stick": {"radius": 0.06, "color": colour, "opacity": 0.55}}])
-            )
+            stick = {"radius": _OVERLAY_RADIUS, "color": colour, "opacity": _OVERLAY_OPACITY}
+            others.append(("setStyle", [{"model": pos, "index": heavy}, {"stick": stick}]))
     styles = {
         HydrogenMode.RELEVANT.value: base + hide_h + mark_h + others,
         HydrogenMode.ALL.value: base + mark_h + others,
@@ -533,9 +543,7 @@ def scene_layers(
     labels = scene_labels(ens, k, torsion_labels=True)
     position_labels = [("addLabel", [text, spec]) for text, spec in _merged_position_labels(labels)]
     torsions = [("addLabel", [lab.text, _label_spec(lab)]) for lab in labels if lab.kind is LabelKind.TORSION]
-    title = title_text(result, k)
-    if overlay:
-        title = f"{result.name} | overlay of {len(order)} conformers on the ring atoms | labelled: conformer {rec.id}"
+    title = overlay_title(result, k) if overlay else title_text(result, k)
     legend = [_entry_dict(e) for e in legend_entries(labels, syn_axial_hydrogens=False) if e.text not in ("H", "±n°")]
     return {
         "models": order,
@@ -603,6 +611,11 @@ def compose_config() -> dict[str, Any]:
     }
 
 
+def overlay_config() -> dict[str, Any]:
+    """How :func:`scene_layers` draws the other conformers of an overlay (the report rebuilds them in JS)."""
+    return {"colours": list(_OVERLAY_COLOURS), "radius": _OVERLAY_RADIUS, "opacity": _OVERLAY_OPACITY}
+
+
 def scene_calls(
     result: Ensemble,
     conformer: int = 0,
@@ -664,10 +677,6 @@ def view(
     ------
     InputError, OptionError
     """
-    import py3Dmol
-
-    from chairbuild.assets import cdn_url
-
     if int(width) <= 0 or int(height) <= 0:
         raise OptionError(f"width and height must be positive, got {width} x {height}")
     calls = scene_calls(
@@ -679,10 +688,43 @@ def view(
         legend=legend,
         height=int(height),
     )
-    v = py3Dmol.view(width=int(width), height=int(height), js=cdn_url())
+    v = _py3dmol_view(int(width), int(height))
     for name, args in calls:
         getattr(v, name)(*args)
     return v
+
+
+_INLINE_MARK = "chairbuild-inline-3dmol"
+
+
+def _py3dmol_view(width: int, height: int):
+    """An empty py3Dmol view whose page loads the bundled 3Dmol.js, inlined (no network).
+
+    py3Dmol's page template loads its ``js`` URL with ``loadScriptAsync('<url>')``; that
+    call is replaced by :func:`chairbuild.assets.inline_loader_js` (a compressed copy,
+    about 0.21 MB per view). Should the template differ, a ``data:`` URL of the whole
+    build is passed instead (about 0.72 MB per view). Without the asset the view loads
+    the pinned version from the CDN, with a warning.
+    """
+    import py3Dmol
+
+    from chairbuild.assets import cdn_url, data_url, inline_loader_js
+
+    loader = inline_loader_js("loadScriptAsync")
+    if loader is None:
+        warnings.warn(
+            f"3Dmol.js was not bundled with chairbuild (npm was missing when it was installed); "
+            f"this view loads it from {cdn_url()} and needs a network",
+            UserWarning,
+            stacklevel=3,
+        )
+        return py3Dmol.view(width=width, height=height, js=cdn_url())
+    v = py3Dmol.view(width=width, height=height, js=_INLINE_MARK)
+    call = f"loadScriptAsync('{_INLINE_MARK}')"
+    if v.startjs.count(call) == 1 and "UNIQUEID" not in loader:
+        v.startjs = v.startjs.replace(call, loader)
+        return v
+    return py3Dmol.view(width=width, height=height, js=data_url())
 
 
 class ConformerBrowser:

@@ -20,6 +20,7 @@ import pytest
 import chairbuild.assets as assets
 from chairbuild.errors import InputError, OptionError
 from chairbuild.report import NETWORK_NOTICE, _JS, caveat_text, check_report_path, report_html, write_report
+from chairbuild.report_pack import PACK_JS, pack_sdf, unpack_record
 
 TBU_METHYL = "CC(C)(C)[C@H]1CC[C@@H](C)CC1"
 METHYLDECALIN = "C[C@H]1CC[C@H]2CCCC[C@@H]2C1"
@@ -80,9 +81,11 @@ def test_report_contains_table_sdf_caveat_and_families(locked, fake_asset):
     assert html.escape(caveat_text([locked])) in text
     assert "model estimates" in text.lower() and "higher-level calculation" in text
     data = _data_block(text, 0)
-    assert data["sdf"] == sdf_text(aligned_ensemble(locked))
-    assert data["sdf"].count("$$$$") == len(locked.conformers) == data["n"]
-    assert len(data["layers"]["single"]) == len(data["layers"]["overlay"]) == len(locked.conformers)
+    # the viewer's SDF is the exporter's, packed: one template, coordinates per conformer
+    assert "records" not in data["sdf"] and len(data["sdf"]["xyz"]) == len(locked.conformers) == data["n"]
+    rebuilt = "".join(unpack_record(data["sdf"], k) for k in range(data["n"]))
+    assert rebuilt == sdf_text(aligned_ensemble(locked))
+    assert len(data["single"]) == len(data["overlay"]["titles"]) == len(locked.conformers)
     flagged = [f for f in locked.families if f.disagreement]
     assert text.count('<span class="flag">disagrees</span>') == len(flagged)
     for fam in locked.families:
@@ -114,7 +117,9 @@ def test_several_ensembles_in_one_file(locked, fused, fake_asset):
     assert text.count("<section id=") == 2
     assert _data_block(text, 1)["n"] == len(fused.conformers)
     assert "<title>two scaffolds</title>" in text
-    assert text.count('<div class="caveat">') == 3
+    assert text.count('class="caveat"') == 1  # the caveat box once, each section links to it
+    assert text.count('href="#cb-caveat"') == 2
+    assert text.count(html.escape(caveat_text([locked, fused]))) == 1
 
 
 def test_bad_arguments_raise_typed_errors(locked):
@@ -157,3 +162,65 @@ def test_assets_fetch_without_npm_raises(tmp_path, monkeypatch):
     with pytest.raises(ChairbuildError, match="npm not found"):
         assets.fetch(npm="npm-that-does-not-exist-here")
     assert assets.main(["status"]) == 1
+
+
+@pytest.mark.skipif(shutil.which("node") is None, reason="Node.js not installed")
+def test_javascript_unpacking_gives_the_exported_sdf_and_every_layer(fused):
+    """cbSdf/cbRecord, cbLayer and cbOverlay rebuild exactly what the Python side computes."""
+    from chairbuild.output import sdf_text
+    from chairbuild.report_pack import viewer_data
+    from chairbuild.viewer import aligned_ensemble, scene_layers
+
+    data = viewer_data(fused, 460, "x.sdf")
+    n = data["n"]
+    script = PACK_JS + "\nconst D = " + json.dumps(data) + ";\n"
+    script += (
+        "const out = {sdf: cbSdf(D.sdf), records: [], single: [], overlay: []};\n"
+        "for (let k = 0; k < D.n; k++) {\n"
+        "  out.records.push(cbRecord(D.sdf, k));\n"
+        "  const L = cbLayer(D.single[k], D.pool);\n"
+        "  out.single.push(L);\n"
+        "  out.overlay.push(cbOverlay(cbLayer(D.single[k], D.pool), k, D.n, D.overlay));\n"
+        "}\n"
+        "console.log(JSON.stringify(out));\n"
+    )
+    Path("unpack.js").write_text(script, encoding="utf-8")
+    got = json.loads(subprocess.run(["node", "unpack.js"], capture_output=True, text=True, check=True, timeout=60).stdout)
+    aligned = aligned_ensemble(fused)
+    assert got["sdf"] == sdf_text(aligned)
+    assert got["records"] == [unpack_record(data["sdf"], k) for k in range(n)]
+    for k in range(n):
+        for overlay, key in ((False, "single"), (True, "overlay")):
+            want = json.loads(json.dumps(scene_layers(fused, k, overlay=overlay, aligned=aligned)))
+            assert got[key][k] == want, (key, k)
+
+
+def test_pack_sdf_keeps_records_that_do_not_share_a_template():
+    text = "a\n  x\n\nnot a counts line\nM  END\n$$$$\nb\n$$$$\n"
+    packed = pack_sdf(text)
+    assert packed == {"records": ["a\n  x\n\nnot a counts line\nM  END\n$$$$\n", "b\n$$$$\n"]}
+    assert unpack_record(packed, 1) == "b\n$$$$\n"
+
+
+def test_report_grows_with_conformers_by_their_coordinates_only(fake_asset):
+    """Bytes per extra conformer stay constant and near the size of its SDF coordinates and properties.
+
+    Before the data were packed, the overlay layers named every other conformer for each
+    conformer, so a 119-conformer report was 9.1 MB and each extra conformer cost more: for
+    this molecule 26 kB per conformer between 4 and 32 conformers, 53 kB between 32 and 65
+    (31 atoms). Packed: 4.1 kB, then 2.9 kB.
+    """
+    from dataclasses import replace
+
+    from chairbuild.pipeline import analyze
+
+    ens = analyze("CCCC[C@H]1CC[C@H](O)CC1", name="trans-4-butylcyclohexanol")
+    n = len(ens.conformers)
+    assert n >= 40  # enough for a slope (65 at the time of writing)
+    sizes = {m: len(report_html(replace(ens, conformers=ens.conformers[:m])).encode("utf-8")) for m in (4, n // 2, n)}
+    low = (sizes[n // 2] - sizes[4]) / (n // 2 - 4)
+    high = (sizes[n] - sizes[n // 2]) / (n - n // 2)
+    assert high < 1.25 * low  # linear, no term that grows with the square of the count
+    # per conformer: 3 coordinates of 10 characters per atom would be the SDF text itself;
+    # the packed coordinates, the property block, the table rows and the packed scene stay below it
+    assert high < 30 * len(ens.symbols) + 3000

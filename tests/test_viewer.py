@@ -9,8 +9,11 @@ independent Kabsch fit.
 
 from __future__ import annotations
 
+import base64
 import dataclasses
+import gzip
 import json
+import re
 
 import numpy as np
 import pytest
@@ -53,6 +56,21 @@ def fused():
     from chairbuild.pipeline import analyze
 
     return analyze(METHYLDECALIN, name="2-methyldecalin")
+
+
+FAKE_JS = "/* stand-in for the 3Dmol.js build */ var $3Dmol = undefined;"
+
+
+@pytest.fixture
+def fake_asset(tmp_path, monkeypatch):
+    import chairbuild.assets as assets
+
+    folder = tmp_path / "assets"
+    folder.mkdir()
+    (folder / assets.JS_NAME).write_text(FAKE_JS, encoding="utf-8")
+    (folder / "3Dmol-version.json").write_text(json.dumps({"version": assets.THREEDMOL_VERSION}), encoding="utf-8")
+    monkeypatch.setattr(assets, "ASSET_DIR", folder)
+    return folder
 
 
 def _bonded_h(ens, atom: int) -> list[int]:
@@ -248,7 +266,41 @@ def test_view_builds_from_the_exported_sdf(locked):
     for lab in scene_labels(aligned_ensemble(locked), 0, torsion_labels=True):
         assert json.dumps(lab.text) in js
     assert "population" in js and "kJ/mol" in js
-    assert "3dmol@2.5.5" in js
+
+
+def test_view_inlines_the_bundled_script_and_needs_no_network(locked, fake_asset):
+    html = view(locked, 0).write_html()
+    assert not re.search(r"https?://", html)
+    payload = re.search(r'atob\("([A-Za-z0-9+/=]+)"\)', html)
+    assert payload is not None
+    assert gzip.decompress(base64.b64decode(payload.group(1))).decode("utf-8") == FAKE_JS
+    assert "chairbuild-inline-3dmol" not in html  # py3Dmol's loader call was replaced
+
+
+def test_view_with_another_py3dmol_template_uses_a_data_url(locked, fake_asset, monkeypatch):
+    import py3Dmol
+
+    class OtherTemplate(py3Dmol.view):
+        def __init__(self, *args, **kwargs):
+            super().__init__(*args, **kwargs)
+            self.startjs = self.startjs.replace("loadScriptAsync(", "loadScriptLater(")
+
+    monkeypatch.setattr(py3Dmol, "view", OtherTemplate)
+    html = view(locked, 0).write_html()
+    assert not re.search(r"https?://", html)
+    url = re.search(r"'data:text/javascript;base64,([A-Za-z0-9+/=]+)'", html)
+    assert url is not None
+    assert base64.b64decode(url.group(1)).decode("utf-8") == FAKE_JS
+
+
+def test_view_without_the_asset_warns_and_loads_the_pinned_cdn_build(locked, tmp_path, monkeypatch):
+    import chairbuild.assets as assets
+
+    monkeypatch.setattr(assets, "ASSET_DIR", tmp_path / "missing")
+    with pytest.warns(UserWarning, match="not bundled"):
+        v = view(locked, 0)
+    assert f"loadScriptAsync('{assets.cdn_url()}')" in v.startjs
+    assert "3dmol@2.5.5" in v.startjs
 
 
 def test_overlay_view_has_every_conformer_and_one_labelled(locked):
