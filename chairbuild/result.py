@@ -39,7 +39,7 @@ __all__ = [
 ]
 
 #: Keys of ``ConformerRecord.thermo`` that are absolute energies (kJ/mol in the record).
-THERMO_ENERGY_KEYS = ("energy", "enthalpy", "free_energy", "zpe")
+THERMO_ENERGY_KEYS = ("energy", "enthalpy", "free_energy", "zpe", "rrho_correction")
 
 #: Version of the JSON layout written by :meth:`Ensemble.to_dict`.
 SCHEMA_VERSION = "1.0"
@@ -398,6 +398,14 @@ class Ensemble:
         Total charge (sum of formal charges) of the molecule.
     multiplicity : int
         Spin multiplicity 2S + 1 (1 closed shell, 2 a radical).
+    ranking_formula : str
+        The formula of the ranking quantity, e.g.
+        ``"G = E[B3LYP-D3(BJ)/def2-SVP//GFN2-xTB] + G_RRHO[GFN2-xTB]"`` (see
+        :mod:`chairbuild.levels.chain`).
+    ranking_terms : tuple of (str, str)
+        The formula's terms as (mapping, key) of each record, e.g.
+        ``(("energies", "B3LYP-D3(BJ)/def2-SVP//GFN2-xTB"), ("thermo", "rrho_correction"))``:
+        a record's ranking quantity is the sum of ``getattr(record, mapping)[key]``.
     """
 
     name: str
@@ -416,9 +424,12 @@ class Ensemble:
     provenance: Mapping[str, Any] = field(default_factory=dict)
     charge: int = 0
     multiplicity: int = 1
+    ranking_formula: str = ""
+    ranking_terms: tuple[tuple[str, str], ...] = ()
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "provenance", MappingProxyType(dict(self.provenance)))
+        object.__setattr__(self, "ranking_terms", tuple(tuple(t) for t in self.ranking_terms))
 
     # ------------------------------------------------------------------ access
     def __len__(self) -> int:
@@ -462,6 +473,8 @@ class Ensemble:
             "multiplicity": self.multiplicity,
             "method": self.method,
             "ranking": self.ranking,
+            "ranking_formula": self.ranking_formula,
+            "ranking_terms": [list(t) for t in self.ranking_terms],
             "temperature_K": self.temperature,
             "energy_unit": unit.value,
             "window": round(unit.from_kj(self.window), 4),
