@@ -23,6 +23,9 @@ __all__ = ["AnalysisOptions", "analyze", "analyze_all", "DEFAULT_WINDOW_KJ"]
 
 #: Default energy window (kJ/mol): keeps cyclohexane's twist-boat (about 23 kJ/mol above the chair).
 DEFAULT_WINDOW_KJ = 30.0
+#: Default DFT level of dft stages, chosen by measurement (README, "DFT refinement").
+DEFAULT_DFT_FUNCTIONAL = "b3lyp"
+DEFAULT_DFT_BASIS = "def2-svp"
 
 
 @dataclass(frozen=True)
@@ -42,7 +45,20 @@ class AnalysisOptions:
     solvation_model : str
         ``"alpb"`` (default) or ``"gbsa"``.
     free_energy : bool
-        Rank and weight by the qRRHO free energy G instead of the energy E.
+        Rank and weight by the qRRHO free energy G instead of the energy E (a shorthand:
+        adds frequencies to the chain, see :func:`chairbuild.levels.chain.shorthand_chain`).
+    stages : sequence of str or Stage
+        The chain of levels after the build, in order, e.g.
+        ``["gfn2:optimise+frequencies,window=15", "dft:single-point,window=8"]``
+        (syntax in :mod:`chairbuild.levels.chain`); replaces ``method``/``rerank``/``free_energy``.
+    functional, basis, dispersion, dft_solvation_model : str
+        Settings of every dft stage that does not set its own (default: the measured
+        default level, see README "DFT refinement").
+    cache : str or None
+        Path of a results cache file (SQLite): finished single points, optimisations and
+        Hessians are stored as they arrive and reused by a later run.
+    chain : Chain
+        Filled by :meth:`validate`: the checked chain, settings filled in.
     temperature : float
         K, default 298.15.
     window : float
@@ -70,38 +86,26 @@ class AnalysisOptions:
     twist_boats: bool = True
     threads: int | None = None
     progress: bool = False
+    stages: tuple = ()
+    functional: str = DEFAULT_DFT_FUNCTIONAL
+    basis: str = DEFAULT_DFT_BASIS
+    dispersion: str = "d3bj"
+    dft_solvation_model: str = "cpcm"
+    cache: str | None = None
     extra: dict[str, Any] = field(default_factory=dict)
+    chain: Any = field(default=None, init=False)
 
     def validate(self) -> "AnalysisOptions":
         """Return self after checking ranges; raise OptionError on a bad value."""
-        from chairbuild.rerank import Level
+        from chairbuild.levels.chain import Engine
 
         if not isinstance(self.forcefield, ForceFieldVariant):
             object.__setattr__(self, "forcefield", ForceFieldVariant.parse(str(self.forcefield)))
-        object.__setattr__(self, "method", Level.parse(self.method))
+        object.__setattr__(self, "method", Engine.parse(self.method))
         if self.rerank is not None:
-            rerank = Level.parse(self.rerank)
-            if rerank is not Level.GFN2:
-                raise OptionError("rerank accepts only 'gfn2'")
-            if self.method is Level.GFN2:
-                raise OptionError(
-                    f"{spell('rerank', 'gfn2')} re-scores MMFF geometries; it cannot be combined with {spell('method', 'gfn2')}"
-                )
-            object.__setattr__(self, "rerank", rerank)
-        uses_xtb = self.method is Level.GFN2 or self.rerank is not None
-        if self.solvent is not None:
-            if not uses_xtb:
-                raise OptionError(
-                    f"{spell('solvent')} needs the GFN2-xTB level: add {spell('method', 'gfn2')} or {spell('rerank', 'gfn2')}"
-                )
-            from chairbuild.forcefields.xtb import available_solvents
-
-            valid = available_solvents(self.solvation_model, include_aliases=True)
-            if self.solvent.strip().lower() not in [v.lower() for v in valid]:
-                raise OptionError(
-                    f"unknown solvent {self.solvent!r} for {self.solvation_model.upper()}; valid: "
-                    + ", ".join(available_solvents(self.solvation_model))
-                )
+            object.__setattr__(self, "rerank", Engine.parse(self.rerank))
+        object.__setattr__(self, "stages", tuple(self.stages) if not isinstance(self.stages, str) else self.stages)
+        object.__setattr__(self, "chain", self._make_chain())
         if not (np.isfinite(self.temperature) and self.temperature > 0):
             raise OptionError(f"temperature must be a positive number of kelvin, got {self.temperature}")
         if not (np.isfinite(self.window) and self.window > 0):
@@ -112,9 +116,56 @@ class AnalysisOptions:
             raise OptionError(f"threads must be at least 1, got {self.threads}")
         return self
 
+    def _make_chain(self):
+        """The checked chain of levels, with the analysis-wide solvent and DFT settings filled in."""
+        from chairbuild.levels.chain import Engine, make_chain, shorthand_chain, with_defaults
+
+        if isinstance(self.stages, str):
+            raise OptionError("stages must be a list of stage specifications, e.g. ['gfn2:optimise', 'dft:single-point']")
+        if self.stages:
+            if self.method is not Engine.MMFF94 or self.rerank is not None or self.free_energy:
+                raise OptionError(
+                    "stages replace method, rerank and free_energy (shorthands of a chain); give one or the other "
+                    "(for free energies add 'frequencies' to a stage, e.g. 'gfn2:optimise+frequencies')"
+                )
+            chain = make_chain(self.stages)
+        else:
+            chain = shorthand_chain(self.method.value, None if self.rerank is None else self.rerank.value, self.free_energy)
+        dft_defaults = {
+            "functional": self.functional,
+            "basis": self.basis,
+            "dispersion": self.dispersion,
+            "solvation": self.dft_solvation_model,
+        }
+        if self.solvent is not None and not any(st.engine is not Engine.MMFF94 for st in chain.stages):
+            raise OptionError("a solvent needs the GFN2-xTB level or a DFT stage: add method='gfn2', rerank='gfn2' or a stage")
+        stages = tuple(with_defaults(st, self.solvent, self.solvation_model, dft_defaults) for st in chain.stages)
+        for st in stages:
+            _check_stage_settings(st)
+        return replace(chain, stages=stages)
+
+
+def _check_stage_settings(stage) -> None:
+    """Check names (solvent, functional, basis) of one stage before any work; raise OptionError."""
+    from chairbuild.levels.chain import Engine
+
+    if stage.engine is Engine.GFN2 and stage.solvent is not None:
+        from chairbuild.forcefields.xtb import available_solvents
+
+        valid = available_solvents(stage.solvation, include_aliases=True)
+        if stage.solvent.strip().lower() not in [v.lower() for v in valid]:
+            raise OptionError(
+                f"unknown solvent {stage.solvent!r} for {stage.solvation.upper()}; valid: "
+                + ", ".join(available_solvents(stage.solvation))
+            )
+    if stage.engine is Engine.DFT:
+        from chairbuild.levels.runner import _dft_settings
+
+        _dft_settings(stage)
+
 
 def _options(kwargs: dict[str, Any]) -> AnalysisOptions:
-    known = set(AnalysisOptions.__dataclass_fields__) - {"extra"}
+    known = {k for k, f in AnalysisOptions.__dataclass_fields__.items() if f.init} - {"extra"}
     unknown = sorted(set(kwargs) - known)
     if unknown:
         raise OptionError(f"unknown option(s): {', '.join(unknown)}; known: {', '.join(sorted(known))}")
@@ -168,20 +219,27 @@ def analyze_all(
 def _open_shell_notes(prepared, opts: AnalysisOptions) -> tuple[str, ...]:
     """Refuse a radical at a closed-shell level (see :mod:`chairbuild.spin`); notes otherwise."""
     from chairbuild.input import charge_and_multiplicity
-    from chairbuild.rerank import Level, method_label
+    from chairbuild.levels.chain import Engine, Operation
     from chairbuild.spin import open_shell_notes
 
     _, multiplicity = charge_and_multiplicity(prepared.mol)
-    xtb = opts.method is Level.GFN2 or opts.rerank is Level.GFN2
+    stages = opts.chain.stages
+    ranking = opts.chain.ranking_engine()
+    thermal = next((st.engine for st in reversed(stages) if Operation.FREQUENCIES in st.operations), None)
+    geometry = next((st.engine for st in reversed(stages) if Operation.OPTIMISE in st.operations), Engine.MMFF94)
     ff = opts.forcefield.value
+
+    def name(engine) -> str:
+        return ff if engine is Engine.MMFF94 else {"gfn2": "GFN2-xTB", "dft": "DFT"}[engine.value]
+
     return open_shell_notes(
         prepared.mol,
         multiplicity,
-        ranking_level=method_label(opts.forcefield, opts.method, opts.rerank, opts.solvent, opts.solvation_model),
-        ranking_open_shell=xtb,
-        thermal_level=None if not opts.free_energy else ("GFN2-xTB" if opts.method is Level.GFN2 else ff),
-        thermal_open_shell=opts.method is Level.GFN2,
-        geometry_level=ff if opts.rerank is Level.GFN2 else None,
+        ranking_level=name(ranking),
+        ranking_open_shell=ranking is not Engine.MMFF94,
+        thermal_level=None if thermal is None else name(thermal),
+        thermal_open_shell=thermal is not Engine.MMFF94,
+        geometry_level=ff if geometry is Engine.MMFF94 and ranking is not Engine.MMFF94 else None,
     )
 
 
@@ -189,7 +247,8 @@ def _run_one(prepared, opts: AnalysisOptions):
     from chairbuild import __version__
     from chairbuild.build import build_starting_structures
     from chairbuild.minimise import deduplicate, minimise_starts
-    from chairbuild.rerank import rerank_structures
+    from chairbuild.input import charge_and_multiplicity
+    from chairbuild.levels.apply import run_chain
     from chairbuild.rings import analyse_rings
 
     timings: dict[str, float] = {}
@@ -219,23 +278,27 @@ def _run_one(prepared, opts: AnalysisOptions):
     timings["minimise_s"] = time.perf_counter() - t1
     rejected = [m for m in minimised if m.status is not Status.OK]
     t2 = time.perf_counter()
-    ranked, rejected_rerank, method_label, n_xtb = rerank_structures(
+    cache = None
+    if opts.cache is not None:
+        from chairbuild.levels.cache import ResultCache
+
+        cache = ResultCache(opts.cache)
+    outcome = run_chain(
         mol,
         distinct,
         prepared.smiles,
         prepared.achiral,
-        forcefield=opts.forcefield,
-        method=opts.method,
-        rerank=opts.rerank,
-        solvent=opts.solvent,
-        solvation_model=opts.solvation_model,
-        free_energy=opts.free_energy,
+        opts.chain,
+        forcefield=opts.forcefield.value,
         temperature=opts.temperature,
         window=opts.window,
         threads=opts.threads,
         progress=opts.progress,
+        cache=cache,
     )
-    rejected += rejected_rerank
+    ranked = outcome.ranked
+    rejected += outcome.rejected
+    n_xtb = outcome.n_gfn2_optimisations
     timings["rerank_s"] = time.perf_counter() - t2
     counts = {
         "ring_state_combinations": report.n_ring_combinations,
@@ -248,7 +311,7 @@ def _run_one(prepared, opts: AnalysisOptions):
         "gfn2_optimisations": n_xtb,
         "rejected": len(rejected),
     }
-    ensemble = _assemble_result(prepared, analysis, ranked, rejected, opts, method_label, report.notes, counts, timings)
+    ensemble = _assemble_result(prepared, analysis, ranked, rejected, opts, outcome, report.notes, counts, timings)
     timings["total_s"] = time.perf_counter() - t0
     provenance = dict(ensemble.provenance)
     provenance["timings"] = {k: round(v, 3) for k, v in timings.items()}
@@ -290,7 +353,7 @@ def _refine_rotamers(mol, analysis, prepared, distinct, opts):
     return extra, n_min
 
 
-def _assemble_result(prepared, analysis, ranked, rejected, opts, method_label, build_notes, counts, timings):
+def _assemble_result(prepared, analysis, ranked, rejected, opts, outcome, build_notes, counts, timings):
     from rdkit import Chem
 
     from chairbuild.describe import describe_conformer
@@ -341,20 +404,22 @@ def _assemble_result(prepared, analysis, ranked, rejected, opts, method_label, b
         )
         for rank, (k, p) in enumerate(zip(kept, pops))
     ]
-    method = method_label
-    # rejected structures: their last energy may belong to another level, so no relative energy
+    method = outcome.method
+    # rejected structures: their last energy may belong to another level, so no relative energy;
+    # a structure that left the chain keeps the energies of every stage it reached
+    rejected = [(m.structure, m.energies) if hasattr(m, "structure") else (m, {"last level": m.energy}) for m in rejected]
     rejected_records = [
         record(
             m,
             id=-(j + 1),
-            energies={"last level": m.energy},
+            energies=energies,
             relative_energy=float("nan"),
             population=0.0,
             degeneracy=1,
             status=m.status,
             message=m.message,
         )
-        for j, m in enumerate(rejected)
+        for j, (m, energies) in enumerate(rejected)
     ]
     symbols = tuple(a.GetSymbol() for a in mol.GetAtoms())
     families = build_families(records, n_rings, symbols, opts.temperature, _additive_scorer(mol, analysis))
@@ -366,13 +431,16 @@ def _assemble_result(prepared, analysis, ranked, rejected, opts, method_label, b
             "rerank": None if opts.rerank is None else opts.rerank.value,
             "solvent": opts.solvent,
             "solvation_model": opts.solvation_model,
-            "free_energy": opts.free_energy,
+            "free_energy": outcome.ranking == "free_energy",
             "temperature_K": opts.temperature,
             "window_kJ": opts.window,
             "max_rotamers": opts.max_rotamers,
             "twist_boats": opts.twist_boats,
             "threads": opts.threads,
+            "stages": [st.spec() for st in opts.chain.stages],
+            "cache": opts.cache,
         },
+        "stages": outcome.stages,
         "counts": counts,
         "versions": _versions(),
     }
@@ -386,7 +454,9 @@ def _assemble_result(prepared, analysis, ranked, rejected, opts, method_label, b
         symbols=symbols,
         ring_atoms=tuple(r.atoms for r in analysis.rings),
         method=method,
-        ranking="free_energy" if opts.free_energy else "energy",
+        ranking=outcome.ranking,
+        ranking_formula=outcome.formula,
+        ranking_terms=outcome.terms,
         temperature=opts.temperature,
         window=opts.window,
         conformers=tuple(records),
@@ -414,7 +484,7 @@ def _versions() -> dict[str, str]:
     from importlib.metadata import PackageNotFoundError, version
 
     out = {}
-    for pkg in ("rdkit", "openmm", "numpy", "scipy", "tblite"):
+    for pkg in ("rdkit", "openmm", "numpy", "scipy", "tblite", "pyscf", "dftd3"):
         try:
             out[pkg] = version(pkg)
         except PackageNotFoundError:

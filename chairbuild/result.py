@@ -43,7 +43,7 @@ __all__ = [
 ]
 
 #: Keys of ``ConformerRecord.thermo`` that are absolute energies (kJ/mol in the record).
-THERMO_ENERGY_KEYS = ("energy", "enthalpy", "free_energy", "zpe")
+THERMO_ENERGY_KEYS = ("energy", "enthalpy", "free_energy", "zpe", "rrho_correction")
 
 #: Keys of ``ConformerRecord.thermo`` that are not energies (written as they are).
 _THERMO_PLAIN_KEYS = ("symmetry_number", "imaginary_modes", "entropy_J_per_molK")
@@ -501,6 +501,15 @@ class Ensemble:
     outside_window : int
         Number of distinct conformers left out because they lie above the window (their
         note is written by :meth:`notes_in`, in the unit of the output).
+
+    ranking_formula : str
+        The formula of the ranking quantity, e.g.
+        ``"G = E[B3LYP-D3(BJ)/def2-SVP//GFN2-xTB] + G_RRHO[GFN2-xTB]"`` (see
+        :mod:`chairbuild.levels.chain`).
+    ranking_terms : tuple of (str, str)
+        The formula's terms as (mapping, key) of each record, e.g.
+        ``(("energies", "B3LYP-D3(BJ)/def2-SVP//GFN2-xTB"), ("thermo", "rrho_correction"))``:
+        a record's ranking quantity is the sum of ``getattr(record, mapping)[key]``.
     """
 
     name: str
@@ -521,8 +530,12 @@ class Ensemble:
     multiplicity: int = 1
     outside_window: int = 0
 
+    ranking_formula: str = ""
+    ranking_terms: tuple[tuple[str, str], ...] = ()
+
     def __post_init__(self) -> None:
         object.__setattr__(self, "provenance", MappingProxyType(dict(self.provenance)))
+        object.__setattr__(self, "ranking_terms", tuple(tuple(t) for t in self.ranking_terms))
 
     # ------------------------------------------------------------------ access
     def __len__(self) -> int:
@@ -606,6 +619,8 @@ class Ensemble:
             "mol_block": self.mol_block,
             "method": self.method,
             "ranking": self.ranking,
+            "ranking_formula": self.ranking_formula,
+            "ranking_terms": [list(t) for t in self.ranking_terms],
             "temperature_K": self.temperature,
             "energy_unit": unit.value,
             "window": round(unit.from_kj(float(self.window)), 4),
@@ -663,6 +678,8 @@ class Ensemble:
                 charge=int(d["charge"]),
                 multiplicity=int(d["multiplicity"]),
                 outside_window=int(d.get("outside_window", 0)),
+                ranking_formula=str(d.get("ranking_formula", "")),
+                ranking_terms=tuple(tuple(t) for t in d.get("ranking_terms", ())),
             )
             # the notes written from numbers at output time are not stored as text
             generated = ens.window_note(unit)
