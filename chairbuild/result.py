@@ -17,12 +17,15 @@ import enum
 import json
 from dataclasses import dataclass, field
 from types import MappingProxyType
-from typing import Any, Mapping
+from typing import TYPE_CHECKING, Any, Mapping
 
 import numpy as np
 
 from chairbuild.choices import Choice
 from chairbuild.constants import KJ_TO_KCAL
+
+if TYPE_CHECKING:
+    from chairbuild.couplings.records import CouplingTable
 
 __all__ = [
     "Status",
@@ -398,6 +401,9 @@ class Ensemble:
         Total charge (sum of formal charges) of the molecule.
     multiplicity : int
         Spin multiplicity 2S + 1 (1 closed shell, 2 a radical).
+    couplings : CouplingTable or None
+        Vicinal 3J(H,H) per conformer, ⟨J⟩, family limits and sensitivities
+        (:mod:`chairbuild.couplings`); None when not computed.
     """
 
     name: str
@@ -416,6 +422,7 @@ class Ensemble:
     provenance: Mapping[str, Any] = field(default_factory=dict)
     charge: int = 0
     multiplicity: int = 1
+    couplings: "CouplingTable | None" = None
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "provenance", MappingProxyType(dict(self.provenance)))
@@ -471,6 +478,7 @@ class Ensemble:
             "rejected": [c.to_dict(unit, self.symbols) for c in self.rejected],
             "notes": list(self.notes),
             "provenance": _jsonable(dict(self.provenance)),
+            "couplings": None if self.couplings is None else self.couplings.to_dict(),
         }
 
     def to_json(self, unit: EnergyUnit | str = EnergyUnit.KJ, indent: int | None = 2) -> str:
