@@ -71,6 +71,24 @@ def _add_analysis_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--quiet", action="store_true", help="no progress bars")
 
 
+def _add_coupling_options(p: argparse.ArgumentParser) -> None:
+    g = p.add_argument_group("vicinal couplings 3J(H,H) (see chairbuild.couplings)")
+    g.add_argument("--couplings", action="store_true", help="print the coupling table: pair, limiting J per family, ensemble <J>")
+    g.add_argument("--couplings-csv", metavar="PATH", default=None, help="write the coupling table as CSV (one row per pair and family)")
+    g.add_argument(
+        "--fit-couplings",
+        metavar="CSV",
+        default=None,
+        help="fit family populations to measured couplings (CSV: proton_a,proton_b,J_Hz[,uncertainty_Hz])",
+    )
+    g.add_argument(
+        "--fit-model",
+        choices=["both", "two-state", "multi-state"],
+        default="both",
+        help="population model of --fit-couplings (default both)",
+    )
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser (exposed for the documentation and tests)."""
     parser = _Parser(
@@ -94,6 +112,7 @@ def build_parser() -> argparse.ArgumentParser:
         help="write results; format by extension (.sdf .xyz .csv .json) or a directory (one XYZ per conformer); repeatable",
     )
     an.add_argument("--report", metavar="PATH", default=None, help="write a self-contained HTML report (tables, plots, 3D viewer)")
+    _add_coupling_options(an)
     _add_analysis_options(an)
     demo = sub.add_parser("demo", help="run the built-in demonstration scenario")
     demo.add_argument("--output-dir", default="demo-output", help="where the demo writes its files (default demo-output)")
@@ -137,6 +156,7 @@ def _run_analyze(args: argparse.Namespace) -> int:
         from chairbuild.report import check_report_path
 
         check_report_path(args.report)
+    measurements = _check_coupling_options(args)
     ensembles = analyze_all(
         args.molecule,
         name=args.name,
@@ -151,12 +171,64 @@ def _run_analyze(args: argparse.Namespace) -> int:
         from chairbuild.report import write_report
 
         print(f"wrote {write_report(ensembles, args.report)}", file=sys.stderr)
+    fits = _write_couplings(args, ensembles, measurements)
     if args.json:
-        payload = ensembles[0].to_dict(unit) if len(ensembles) == 1 else [e.to_dict(unit) for e in ensembles]
-        print(json.dumps(payload, indent=2))
+        dicts = [e.to_dict(unit) for e in ensembles]
+        for d, f in zip(dicts, fits):
+            if f:
+                d["coupling_fits"] = [fit.to_dict() for fit in f]
+        payload = dicts[0] if len(dicts) == 1 else dicts
+        print(json.dumps(payload, indent=2, allow_nan=False))
     else:
         print("\n\n".join(format_table(e, unit) for e in ensembles))
+        if args.couplings or measurements:
+            from chairbuild.couplings.tables import couplings_text
+
+            for ens, f in zip(ensembles, fits):
+                print("\n" + couplings_text(ens))
+                for fit in f:
+                    print("\n" + fit.format())
     return 0
+
+
+def _check_coupling_options(args: argparse.Namespace):
+    """Check the coupling outputs and read the measured couplings before any work starts."""
+    if args.couplings_csv:
+        from pathlib import Path
+
+        from chairbuild.errors import OptionError
+        from chairbuild.output import check_target
+
+        if Path(args.couplings_csv).suffix.lower() != ".csv":
+            raise OptionError(f"--couplings-csv writes CSV; give a path ending in .csv, got {args.couplings_csv!r}")
+        check_target(args.couplings_csv)
+    if not args.fit_couplings:
+        return None
+    from chairbuild.couplings.fit import read_measurements
+
+    return read_measurements(args.fit_couplings)
+
+
+def _write_couplings(args: argparse.Namespace, ensembles, measurements) -> list[list]:
+    """Write the coupling CSV and run the fits; returns the fits of each ensemble."""
+    from pathlib import Path
+
+    if args.couplings_csv:
+        from chairbuild.couplings.tables import couplings_csv_text
+        from chairbuild.output import _atomic_write
+
+        for k, ens in enumerate(ensembles, start=1):
+            path = Path(args.couplings_csv)
+            if len(ensembles) > 1:
+                path = path.with_name(f"{path.stem}_isomer{k}{path.suffix}")
+            _atomic_write(path, couplings_csv_text(ens))
+            print(f"wrote {path}", file=sys.stderr)
+    if not measurements:
+        return [[] for _ in ensembles]
+    from chairbuild.couplings.fit import fit_couplings
+
+    models = ["two-state", "multi-state"] if args.fit_model == "both" else [args.fit_model]
+    return [[fit_couplings(ens, measurements, model=m) for m in models] for ens in ensembles]
 
 
 def main(argv: Sequence[str] | None = None) -> int:

@@ -390,6 +390,8 @@ ranked by {_e(ens.ranking.replace('_', ' '))}, T = {ens.temperature:.2f} K</p>
 geometries and energies are not recomputed.</small></p>
 <h3>Ring-state families and the additive estimate</h3>
 {_family_tables(ens)}
+<h3>Vicinal couplings 3J(H,H)</h3>
+{_couplings_section(ens)}
 <h3>Notes</h3>
 {notes_html}
 <details><summary>plain-text table</summary><pre>{_e(format_table(ens))}</pre></details>
@@ -397,6 +399,12 @@ geometries and energies are not recomputed.</small></p>
 {_provenance_html(ens)}
 </section>
 """
+
+
+def _couplings_section(ens: Ensemble) -> str:
+    from chairbuild.couplings.tables import couplings_html
+
+    return couplings_html(ens)
 
 
 def _library_tag() -> tuple[str, str]:
