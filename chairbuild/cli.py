@@ -92,6 +92,24 @@ def _add_analysis_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--quiet", action="store_true", help="no progress bars and no 'wrote FILE' lines (errors still print)")
 
 
+def _add_coupling_options(p: argparse.ArgumentParser) -> None:
+    g = p.add_argument_group("vicinal couplings 3J(H,H) (see chairbuild.couplings)")
+    g.add_argument("--couplings", action="store_true", help="print the coupling table: pair, limiting J per family, ensemble <J>")
+    g.add_argument("--couplings-csv", metavar="PATH", default=None, help="write the coupling table as CSV (one row per pair and family)")
+    g.add_argument(
+        "--fit-couplings",
+        metavar="CSV",
+        default=None,
+        help="fit family populations to measured couplings (CSV: proton_a,proton_b,J_Hz[,uncertainty_Hz])",
+    )
+    g.add_argument(
+        "--fit-model",
+        choices=["both", "two-state", "multi-state"],
+        default="both",
+        help="population model of --fit-couplings (default both)",
+    )
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser (exposed for the documentation and tests)."""
     from chairbuild import __version__
@@ -130,6 +148,7 @@ def build_parser() -> argparse.ArgumentParser:
     an.add_argument(
         "--overwrite", action="store_true", help="replace the rank_*.xyz files of an earlier run in an -o directory"
     )
+    _add_coupling_options(an)
     _add_analysis_options(an)
     from chairbuild.batch.cli import add_batch_parser
 
@@ -182,6 +201,7 @@ def _run_analyze(args: argparse.Namespace) -> int:
         from chairbuild.report import check_report_path
 
         check_report_path(args.report)
+    measurements = _check_coupling_options(args)
     ensembles = analyze_all(
         args.molecule,
         name=args.name,
@@ -196,11 +216,23 @@ def _run_analyze(args: argparse.Namespace) -> int:
         from chairbuild.report import write_report
 
         _say(args, f"wrote {write_report(ensembles, args.report)}")
+    fits = _write_couplings(args, ensembles, measurements)
     if args.json:
-        payload = ensembles[0].to_dict(unit) if len(ensembles) == 1 else [e.to_dict(unit) for e in ensembles]
-        print(json.dumps(payload, indent=2))
+        dicts = [e.to_dict(unit) for e in ensembles]
+        for d, f in zip(dicts, fits):
+            if f:
+                d["coupling_fits"] = [fit.to_dict() for fit in f]
+        payload = dicts[0] if len(dicts) == 1 else dicts
+        print(json.dumps(payload, indent=2, allow_nan=False))
     else:
         print("\n\n".join(format_table(e, unit) for e in ensembles))
+        if args.couplings or measurements:
+            from chairbuild.couplings.tables import couplings_text
+
+            for ens, f in zip(ensembles, fits):
+                print("\n" + couplings_text(ens))
+                for fit in f:
+                    print("\n" + fit.format())
     sys.stdout.flush()
     return EXIT_OK
 
@@ -214,6 +246,46 @@ def _silence_stdout() -> None:
         os.dup2(devnull, sys.stdout.fileno())
     except (OSError, ValueError):
         pass
+
+
+def _check_coupling_options(args: argparse.Namespace):
+    """Check the coupling outputs and read the measured couplings before any work starts."""
+    if args.couplings_csv:
+        from pathlib import Path
+
+        from chairbuild.errors import OptionError
+        from chairbuild.output import check_target
+
+        if Path(args.couplings_csv).suffix.lower() != ".csv":
+            raise OptionError(f"--couplings-csv writes CSV; give a path ending in .csv, got {args.couplings_csv!r}")
+        check_target(args.couplings_csv)
+    if not args.fit_couplings:
+        return None
+    from chairbuild.couplings.fit import read_measurements
+
+    return read_measurements(args.fit_couplings)
+
+
+def _write_couplings(args: argparse.Namespace, ensembles, measurements) -> list[list]:
+    """Write the coupling CSV and run the fits; returns the fits of each ensemble."""
+    from pathlib import Path
+
+    if args.couplings_csv:
+        from chairbuild.couplings.tables import couplings_csv_text
+        from chairbuild.output import _atomic_write
+
+        for k, ens in enumerate(ensembles, start=1):
+            path = Path(args.couplings_csv)
+            if len(ensembles) > 1:
+                path = path.with_name(f"{path.stem}_isomer{k}{path.suffix}")
+            _atomic_write(path, couplings_csv_text(ens))
+            _say(args, f"wrote {path}")
+    if not measurements:
+        return [[] for _ in ensembles]
+    from chairbuild.couplings.fit import fit_couplings
+
+    models = ["two-state", "multi-state"] if args.fit_model == "both" else [args.fit_model]
+    return [[fit_couplings(ens, measurements, model=m) for m in models] for ens in ensembles]
 
 
 def main(argv: Sequence[str] | None = None) -> int:

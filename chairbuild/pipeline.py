@@ -356,6 +356,7 @@ def _refine_rotamers(mol, analysis, prepared, distinct, opts):
 def _assemble_result(prepared, analysis, ranked, rejected, opts, outcome, build_notes, counts, timings):
     from rdkit import Chem
 
+    from chairbuild.couplings.ensemble import compute_couplings
     from chairbuild.describe import describe_conformer
     from chairbuild.families import build_families, family_keys
     from chairbuild.input import charge_and_multiplicity
@@ -424,6 +425,9 @@ def _assemble_result(prepared, analysis, ranked, rejected, opts, outcome, build_
     symbols = tuple(a.GetSymbol() for a in mol.GetAtoms())
     families = build_families(records, n_rings, symbols, opts.temperature, _additive_scorer(mol, analysis))
     timings["describe_s"] = time.perf_counter() - t
+    t_j = time.perf_counter()
+    couplings = compute_couplings(mol, records, families, [r.atoms for r in analysis.rings], opts.temperature)
+    timings["couplings_s"] = time.perf_counter() - t_j
     provenance = {
         "options": {
             "forcefield": opts.forcefield.value,
@@ -465,6 +469,7 @@ def _assemble_result(prepared, analysis, ranked, rejected, opts, outcome, build_
         notes=tuple(notes),
         provenance=provenance,
         outside_window=dropped,
+        couplings=couplings,
     )
 
 

@@ -23,6 +23,7 @@ __all__ = [
     "family_populations_vs_temperature",
     "family_temperature_figure",
     "additive_vs_model_figure",
+    "coupling_temperature_figure",
     "figure_png",
 ]
 
@@ -239,6 +240,71 @@ def additive_vs_model_figure(result: Ensemble):
         ax.margins(y=0.18)
         ax.set_xticks(x, [_tick_label(f.label) for f in ring_fams], fontsize=7)
         ax.legend(fontsize=7, loc="upper left", title="! = disagree beyond threshold", title_fontsize=7)
+    return fig
+
+
+def _deciding_pairs(result: Ensemble, max_pairs: int):
+    """Pairs with the largest |d<J>/dG| for any family (the couplings that tell families apart)."""
+    pairs = list(result.couplings.pairs)
+    score = {p.name: max((abs(v) for v in p.sensitivity.values()), default=0.0) for p in pairs}
+    spread = {p.name: (max(p.family_limits.values()) - min(p.family_limits.values())) if p.family_limits else 0.0 for p in pairs}
+    return sorted(pairs, key=lambda p: (-score[p.name], -spread[p.name]))[:max_pairs]
+
+
+def coupling_temperature_figure(
+    result: Ensemble,
+    pairs: Sequence[tuple[str, str]] | None = None,
+    max_pairs: int = 6,
+    t_min: float = 150.0,
+    t_max: float = 400.0,
+    n_points: int = 126,
+):
+    """Population-weighted <J> of chosen H-H pairs against temperature.
+
+    The fixed energies of the analysis are re-weighted at each temperature
+    (:func:`chairbuild.couplings.ensemble.couplings_vs_temperature`); the dotted line marks
+    the temperature of the analysis, and the thin dashed lines at the right edge the
+    limiting couplings of each pair's two most populated families.
+
+    Parameters
+    ----------
+    result : Ensemble
+    pairs : sequence of (str, str), optional
+        Proton labels; default: the ``max_pairs`` pairs with the largest |d<J>/dG|.
+    max_pairs : int
+    t_min, t_max : float
+        K.
+    n_points : int
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    from chairbuild.couplings.ensemble import couplings_vs_temperature
+
+    _check(result)
+    if result.couplings is None or not result.couplings.pairs:
+        raise InputError(f"{result.name!r} has no couplings to plot")
+    if not (0 < t_min < t_max):
+        raise OptionError(f"need 0 < t_min < t_max, got {t_min} and {t_max}")
+    if max_pairs < 1:
+        raise OptionError(f"max_pairs must be at least 1, got {max_pairs}")
+    chosen = [result.couplings.find(a, b) for a, b in pairs] if pairs else _deciding_pairs(result, max_pairs)
+    temps = np.linspace(t_min, t_max, int(n_points))
+    curves = couplings_vs_temperature(result, temps)
+    fig = _new_figure(6.4, 3.8)
+    ax = fig.subplots()
+    for rec in chosen:
+        (line,) = ax.plot(temps, curves[rec.name], label=rec.name)
+        fams = sorted((f for f in result.families if f.key in rec.family_limits), key=lambda f: -f.population)[:2]
+        for f in fams:
+            ax.plot([t_max - 0.06 * (t_max - t_min), t_max], [rec.family_limits[f.key]] * 2, "--", color=line.get_color(), lw=0.8)
+    ax.axvline(result.temperature, color="0.5", lw=0.8, ls=":")
+    ax.set_xlim(t_min, t_max)
+    ax.set_xlabel("temperature (K)")
+    ax.set_ylabel("population-weighted 3J(H,H) (Hz)")
+    ax.set_title(f"<J> against temperature (fixed energies re-weighted; {_CAVEAT})\ndashes: limits of the two main families", fontsize=9)
+    ax.legend(fontsize=7, loc="best")
     return fig
 
 

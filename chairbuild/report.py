@@ -383,6 +383,8 @@ total charge {ens.charge}, multiplicity {ens.multiplicity}; atom numbers are 0-b
 geometries and energies are not recomputed.</small></p>
 <h3>Ring-state families and the additive estimate</h3>
 {_family_tables(ens)}
+<h3>Vicinal couplings 3J(H,H)</h3>
+{_couplings_section(ens)}
 <h3>Notes</h3>
 {notes_html}
 <details><summary>plain-text table</summary><pre>{_e(format_table(ens))}</pre></details>
@@ -390,6 +392,12 @@ geometries and energies are not recomputed.</small></p>
 {_provenance_html(ens)}
 </section>
 """
+
+
+def _couplings_section(ens: Ensemble) -> str:
+    from chairbuild.couplings.tables import couplings_html
+
+    return couplings_html(ens)
 
 
 def _library_tag() -> tuple[str, str]:

@@ -18,13 +18,16 @@ import json
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 from types import MappingProxyType
-from typing import Any, Mapping
+from typing import TYPE_CHECKING, Any, Mapping
 
 import numpy as np
 
 from chairbuild.choices import Choice
 from chairbuild.constants import KJ_TO_KCAL
 from chairbuild.errors import InputError
+
+if TYPE_CHECKING:
+    from chairbuild.couplings.records import CouplingTable
 
 __all__ = [
     "Status",
@@ -510,6 +513,9 @@ class Ensemble:
         The formula's terms as (mapping, key) of each record, e.g.
         ``(("energies", "B3LYP-D3(BJ)/def2-SVP//GFN2-xTB"), ("thermo", "rrho_correction"))``:
         a record's ranking quantity is the sum of ``getattr(record, mapping)[key]``.
+    couplings : CouplingTable or None
+        Vicinal 3J(H,H) per conformer, ⟨J⟩, family limits and sensitivities
+        (:mod:`chairbuild.couplings`); None when not computed.
     """
 
     name: str
@@ -532,6 +538,7 @@ class Ensemble:
 
     ranking_formula: str = ""
     ranking_terms: tuple[tuple[str, str], ...] = ()
+    couplings: "CouplingTable | None" = None
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "provenance", MappingProxyType(dict(self.provenance)))
@@ -631,6 +638,7 @@ class Ensemble:
             "notes": list(self.notes_in(unit)),
             "outside_window": self.outside_window,
             "provenance": _jsonable(dict(self.provenance)),
+            "couplings": None if self.couplings is None else self.couplings.to_dict(),
         }
 
     def to_json(self, unit: EnergyUnit | str = EnergyUnit.KJ, indent: int | None = 2) -> str:

@@ -51,6 +51,8 @@ __all__ = [
     "SYN_AXIAL_H_COLOUR",
     "TORSION_COLOUR",
     "scene_labels",
+    "coupling_labels",
+    "COUPLING_COLOUR",
     "relevant_hydrogens",
     "hydrogen_atoms",
     "legend_entries",
@@ -85,6 +87,7 @@ class LabelKind(str, enum.Enum):
 
     POSITION = "position"
     TORSION = "torsion"
+    COUPLING = "coupling"
 
 
 #: Label colour of each substituent position (this project's own scheme).
@@ -107,6 +110,8 @@ POSITION_TEXT: dict[Position, str] = {
 }
 #: Colour of the hydrogens in a syn-1,3 contact with an axial substituent.
 SYN_AXIAL_H_COLOUR = "#db2777"
+#: Background of H–H coupling labels and colour of the line joining the two protons.
+COUPLING_COLOUR = "#4338ca"
 #: Background of endocyclic torsion labels (text is dark slate).
 TORSION_COLOUR = "#e2e8f0"
 _TORSION_FONT = "#1e293b"
@@ -300,6 +305,62 @@ def scene_labels(result: Ensemble, conformer: int = 0, torsion_labels: bool = Fa
                     )
                 )
     return labels
+
+
+def coupling_labels(result: Ensemble, conformer: int = 0, pairs: Sequence[tuple[str, str]] = ()) -> list[Label]:
+    """One label per chosen H–H pair: its 3J in this conformer and the ensemble ⟨J⟩.
+
+    The label sits at the middle of the two protons (of a methyl group's centroid).
+
+    Parameters
+    ----------
+    result : Ensemble
+    conformer : int
+        Index into ``result.conformers``.
+    pairs : sequence of (str, str)
+        Proton labels or atom indices (see :mod:`chairbuild.couplings.records`).
+
+    Raises
+    ------
+    InputError
+        The ensemble has no couplings, or a pair is not a vicinal coupling.
+    """
+    rec = _conformer(result, conformer)
+    if pairs and (result.couplings is None or not result.couplings.pairs):
+        raise InputError(f"{result.name!r} has no computed couplings to label")
+    k = int(conformer) % len(result.conformers)
+    xyz = np.asarray(rec.coords, dtype=float)
+    out = []
+    for a, b in pairs:
+        coupling = result.couplings.find(a, b)
+        ends = [xyz[list(h)].mean(axis=0) for h in coupling.hydrogens]
+        mid = 0.5 * (ends[0] + ends[1])
+        out.append(
+            Label(
+                atom=coupling.hydrogens[0][0],
+                text=f"{coupling.name} {coupling.values[k]:.1f} Hz (<J> {coupling.average:.1f})",
+                colour=COUPLING_COLOUR,
+                kind=LabelKind.COUPLING,
+                ring_index=coupling.ring_index or 0,
+                atoms=coupling.hydrogens[0] + coupling.hydrogens[1],
+                value=float(coupling.values[k]),
+                xyz=tuple(float(v) for v in mid),
+            )
+        )
+    return out
+
+
+def _coupling_calls(ens: Ensemble, k: int, model: int, pairs: Sequence[tuple[str, str]]) -> list[tuple[str, list[Any]]]:
+    """Spheres on the coupled protons, a dashed line between them and the J label."""
+    calls: list[tuple[str, list[Any]]] = []
+    xyz = np.asarray(ens.conformers[k].coords, dtype=float)
+    for (a, b), lab in zip(pairs, coupling_labels(ens, k, pairs)):
+        coupling = ens.couplings.find(a, b)
+        calls.append(("setStyle", [{"model": model, "index": list(lab.atoms)}, {"stick": {"radius": 0.1}, "sphere": {"radius": 0.25, "color": COUPLING_COLOUR}}]))
+        ends = [xyz[list(h)].mean(axis=0) for h in coupling.hydrogens]
+        calls.append(("addCylinder", [{"start": _round_xyz(ends[0]), "end": _round_xyz(ends[1]), "radius": 0.04, "dashed": True, "color": COUPLING_COLOUR}]))
+        calls.append(("addLabel", [lab.text, _label_spec(lab)]))
+    return calls
 
 
 def legend_entries(labels: Sequence[Label] = (), syn_axial_hydrogens: bool = True, complete: bool = False) -> list[LegendEntry]:
@@ -648,6 +709,7 @@ def view(
     width: int = 640,
     height: int = 480,
     legend: bool = True,
+    couplings: Sequence[tuple[str, str]] = (),
 ):
     """Show one conformer, or all of them overlaid, in a py3Dmol view.
 
@@ -667,6 +729,9 @@ def view(
         Size in pixels.
     legend : bool
         Title (energy, population) and legend drawn in the scene.
+    couplings : sequence of (str, str)
+        H–H pairs to label with their 3J in this conformer and the ensemble ⟨J⟩ (proton
+        labels or atom indices, see :mod:`chairbuild.couplings.records`).
 
     Returns
     -------
@@ -688,6 +753,11 @@ def view(
         legend=legend,
         height=int(height),
     )
+    if couplings:
+        ens = aligned_ensemble(result, reference=0)
+        k = int(conformer) % len(result.conformers)
+        main = k if overlay else 0
+        calls = calls[:-1] + _coupling_calls(ens, k, main, couplings) + calls[-1:]
     v = _py3dmol_view(int(width), int(height))
     for name, args in calls:
         getattr(v, name)(*args)
@@ -743,7 +813,7 @@ class ConformerBrowser:
 
     def __init__(self, result: Ensemble, **view_options: Any) -> None:
         _conformer(result, 0)
-        unknown = set(view_options) - {"show_hydrogens", "torsion_labels", "width", "height", "legend"}
+        unknown = set(view_options) - {"show_hydrogens", "torsion_labels", "width", "height", "legend", "couplings"}
         if unknown:
             raise OptionError(f"unknown view option(s): {', '.join(sorted(unknown))}")
         self._result = result
