@@ -92,11 +92,12 @@ class RingType:
         return self.positions[self.atoms.index(ring_atom)]
 
     def where(self, ring_atom: int) -> str:
-        """``"position C2 of tetrahydropyran"`` (``"atom 7 of other ring"``, ``"C1 of cyclohexane"``)."""
-        pos = self.position_of(ring_atom)
+        """``"position C2 of tetrahydropyran (atom 5)"``; ``"atom 3 of cyclohexane"``."""
+        if self.name == CYCLOHEXANE:
+            return f"atom {ring_atom} of cyclohexane"
         if self.name == OTHER_RING:
-            return f"{pos} of an other ring"
-        return f"position {pos} of {self.name}"
+            return f"atom {ring_atom} of an other ring"
+        return f"position {self.position_of(ring_atom)} of {self.name} (atom {ring_atom})"
 
 
 def _token(mol: Chem.Mol, idx: int, ring: tuple[int, ...]) -> str:
