@@ -18,7 +18,7 @@ from pathlib import Path
 from typing import Callable, Sequence
 
 from chairbuild.errors import OptionError, OutputError
-from chairbuild.result import EnergyUnit, Ensemble
+from chairbuild.result import THERMO_ENERGY_KEYS, AdditiveStatus, EnergyUnit, Ensemble
 
 __all__ = ["write", "format_table", "sdf_text", "xyz_text", "csv_text", "SUPPORTED_SUFFIXES"]
 
@@ -264,18 +264,14 @@ def format_table(ens: Ensemble, unit: EnergyUnit = EnergyUnit.KJ, max_rows: int 
         any_family = True
         lines += ["", f"ring {r} (atoms {'-'.join(map(str, ens.ring_atoms[r]))}): families"]
         lines.append(f"  {'pop %':>7} {'dG':>7} {'K':>9} {'additive':>9} {'model':>7}  family")
-        partial_notes: list[str] = []
         for f in fams:
-            add = "" if f.additive_energy is None else f"{unit.from_kj(f.additive_energy):8.2f}" + ("*" if f.additive_notes else " ")
-            partial_notes += [n for n in f.additive_notes if n not in partial_notes]
             model = "" if f.model_energy is None else f"{unit.from_kj(f.model_energy):7.2f}"
             kval = f"{f.equilibrium_constant:9.2f}" if f.equilibrium_constant < 1e6 else f"{'>1e6':>9}"
-            flag = "  << additive estimate disagrees" if f.disagreement else ""
             lines.append(
-                f"  {100 * f.population:7.2f} {unit.from_kj(f.delta_g):7.2f} {kval} {add:>9} {model:>7}  {f.label}{flag}"
+                f"  {100 * f.population:7.2f} {unit.from_kj(f.delta_g):7.2f} {kval} {_additive_cell(f, unit):>9} {model:>7}"
+                f"  {f.label}{_flag_text(f, unit)}"
             )
-        if partial_notes:
-            lines.append("  * additive estimate partial: " + "; ".join(n.split(": ", 1)[-1] for n in partial_notes))
+        lines += _additive_breakdown(fams, unit)
     if any_family:
         lines.append(f"  ({FAMILY_CONVENTION})")
     notes = ens.notes_in(unit)
@@ -284,6 +280,51 @@ def format_table(ens: Ensemble, unit: EnergyUnit = EnergyUnit.KJ, max_rows: int 
     if ens.rejected:
         lines.append(f"  - {len(ens.rejected)} structure(s) rejected (see JSON 'rejected' for status and reason)")
     return "\n".join(lines)
+
+
+def _additive_cell(f, unit: EnergyUnit) -> str:
+    """The additive column: a number, 'unknown' (a term is missing) or 'none' (no increments known)."""
+    if f.additive_energy is not None:
+        return f"{unit.from_kj(f.additive_energy):8.2f}"
+    return {AdditiveStatus.UNKNOWN: "unknown", AdditiveStatus.NO_INCREMENTS: "none"}.get(f.additive_status, "")
+
+
+def _flag_text(f, unit: EnergyUnit) -> str:
+    if not f.disagreement:
+        return ""
+    from chairbuild.families import DISAGREEMENT_KJ
+
+    u = unit.value
+    return (
+        f"  << additive estimate disagrees (beyond {unit.from_kj(DISAGREEMENT_KJ):.1f} + "
+        f"{unit.from_kj(f.additive_uncertainty or 0.0):.1f} {u})"
+    )
+
+
+def _additive_breakdown(fams, unit: EnergyUnit) -> list[str]:
+    """Per-family increments with numbered sources and conditions; unknown increments."""
+    lines: list[str] = []
+    sources: dict[str, int] = {}
+    cite: list[str] = []
+    for f in fams:
+        if f.additive_status is AdditiveStatus.NONE or not (f.additive_terms or f.additive_notes):
+            continue
+        if not lines:
+            lines.append(f"  additive breakdown ({unit.value}; [n] = source below):")
+        status = f"  ({f.additive_status.value})" if f.additive_status in (AdditiveStatus.UNKNOWN, AdditiveStatus.NO_INCREMENTS) else ""
+        lines.append(f"    {f.label}{status}")
+        for t in f.additive_terms:
+            ref = f"{t.increment}: {t.source}" + (f"; {t.conditions}" if t.conditions else "")
+            if ref not in sources:
+                sources[ref] = len(sources) + 1
+                cite.append(f"    [{sources[ref]}] {ref}")
+            back = f"  fallback: {t.fallback}" if t.fallback else ""
+            lines.append(f"      {unit.from_kj(t.value):+7.2f}  {t.kind}: {t.applies_to or t.kind} [{sources[ref]}]{back}")
+        for n in f.additive_notes:
+            lines.append(f"      {n.split(': ', 1)[-1]}")
+    if cite:
+        lines += ["  sources:"] + cite
+    return lines
 
 
 def _short(position: str) -> str:

@@ -479,8 +479,8 @@ def _additive_scorer(mol, analysis):
     models = {r.index: AdditiveModel(mol, [r.atoms]) for r in analysis.rings}
 
     def score(ring_index: int, coords: np.ndarray):
-        model = models[ring_index]
-        return list(model.terms(coords)), list(model.unscored(coords))
+        est = models[ring_index].evaluate(coords)
+        return list(est.terms), list(est.unscored), list(est.caveats)
 
     return score
 

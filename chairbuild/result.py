@@ -39,6 +39,7 @@ __all__ = [
     "ConformerRecord",
     "FamilyRecord",
     "AdditiveTerm",
+    "AdditiveStatus",
     "Ensemble",
     "SCHEMA_VERSION",
     "load_json",
@@ -341,27 +342,55 @@ class ConformerRecord:
 
 @dataclass(frozen=True)
 class AdditiveTerm:
-    """One increment of the additive estimate (an A-value, a gauche or syn-diaxial term).
+    """One increment of the additive estimate (an A-value, an anomeric, gauche, geminal or syn-diaxial term).
 
     Attributes
     ----------
     kind : str
-        Increment name as in the data table (``"A-value"``, ``"gauche-butane"``, ...).
+        Increment kind as in the data table (``"A-value"``, ``"anomeric"``, ``"gauche"``, ...).
     atoms : tuple of int
         Atoms involved.
     value : float
         Contribution (kJ/mol).
     source : str
         Citation of the value, with its flag (P/S/M).
+    increment : str
+        Key of the table row used (``"THP-C3-CH3"``, ``"CH3"``).
+    applies_to : str
+        What the term scores, with the ring type and position
+        (``"CH3 axial at position C3 of tetrahydropyran"``).
+    conditions : str
+        Temperature, solvent or phase of the published value ('' where the source gives none).
+    fallback : str
+        '' when the row is specific to this ring and position; otherwise why a generic
+        (cyclohexane) row stands in for it.
+    uncertainty : float
+        Half-width of the range quoted for the value (kJ/mol); 0 where one number is quoted.
     """
 
     kind: str
     atoms: tuple[int, ...]
     value: float
     source: str
+    increment: str = ""
+    applies_to: str = ""
+    conditions: str = ""
+    fallback: str = ""
+    uncertainty: float = 0.0
 
     def to_dict(self, unit: EnergyUnit) -> dict[str, Any]:
-        return {"kind": self.kind, "atoms": list(self.atoms), "value": round(unit.from_kj(float(self.value)), 3), "source": self.source}
+        return {
+            "kind": self.kind,
+            "atoms": list(self.atoms),
+            "value": round(unit.from_kj(self.value), 3),
+            "source": self.source,
+            "increment": self.increment,
+            "applies_to": self.applies_to,
+            "conditions": self.conditions,
+            "fallback": self.fallback,
+            "uncertainty": round(unit.from_kj(self.uncertainty), 3),
+        }
+
 
     @classmethod
     def from_dict(cls, d: Mapping[str, Any], unit: EnergyUnit) -> "AdditiveTerm":
@@ -371,7 +400,26 @@ class AdditiveTerm:
             atoms=tuple(int(a) for a in d["atoms"]),
             value=unit.to_kj(float(d["value"])),
             source=str(d["source"]),
+            increment=str(d.get("increment", "")),
+            applies_to=str(d.get("applies_to", "")),
+            conditions=str(d.get("conditions", "")),
+            fallback=str(d.get("fallback", "")),
+            uncertainty=unit.to_kj(float(d.get("uncertainty", 0.0))),
         )
+
+class AdditiveStatus(str, enum.Enum):
+    """What the additive column of a family holds."""
+
+    #: A number comparable with the force field.
+    ESTIMATED = "estimated"
+    #: The ring's chair family with the lowest complete estimate (0 by definition).
+    REFERENCE = "reference"
+    #: The estimate lacks a term: "increment unknown for X at position Y", no number.
+    UNKNOWN = "increment unknown"
+    #: Neither this family nor the reference has a single term: nothing to compare.
+    NO_INCREMENTS = "no increments known"
+    #: Not a chair family (or no additive scorer): no estimate.
+    NONE = "none"
 
 
 @dataclass(frozen=True)
@@ -394,15 +442,23 @@ class FamilyRecord:
     equilibrium_constant : float
         population of the most populated family / population of this one (≥ 1).
     additive_energy : float or None
-        Additive increment estimate relative to the ring's lowest additive family (kJ/mol).
+        Additive increment estimate relative to the ring's reference family (kJ/mol); None
+        unless ``additive_status`` is ESTIMATED or REFERENCE.
     additive_terms : tuple of AdditiveTerm
     model_energy : float or None
         Lowest relative energy of the members at the ranking level (kJ/mol), relative to
-        the ring's lowest family.
+        the ring's reference family.
     disagreement : bool
-        True when additive and model energies differ by more than the ensemble's threshold.
+        True when additive and model energies differ by more than the threshold plus
+        ``additive_uncertainty``.
     additive_notes : tuple of str
-        What the additive estimate could not score (it is then partial), one reason each.
+        Increments the estimate lacks ("increment unknown for X at position Y"), one each;
+        empty when the estimate is complete.
+    additive_status : AdditiveStatus
+    additive_uncertainty : float or None
+        Sum of the quoted ranges of this family's terms and the reference family's (kJ/mol).
+    additive_caveats : tuple of str
+        Scored but approximate terms: generic fallbacks, lower bounds.
     """
 
     key: str
@@ -417,6 +473,9 @@ class FamilyRecord:
     model_energy: float | None = None
     disagreement: bool = False
     additive_notes: tuple[str, ...] = ()
+    additive_status: AdditiveStatus = AdditiveStatus.NONE
+    additive_uncertainty: float | None = None
+    additive_caveats: tuple[str, ...] = ()
 
     def to_dict(self, unit: EnergyUnit) -> dict[str, Any]:
         def conv(v: float | None) -> float | None:
@@ -436,6 +495,9 @@ class FamilyRecord:
             "disagreement": self.disagreement,
             "additive_partial": bool(self.additive_notes),
             "additive_notes": list(self.additive_notes),
+            "additive_status": self.additive_status.value,
+            "additive_uncertainty": conv(self.additive_uncertainty),
+            "additive_caveats": list(self.additive_caveats),
         }
 
     @classmethod
@@ -459,6 +521,9 @@ class FamilyRecord:
             model_energy=energy(d["model_energy"], None),
             disagreement=bool(d["disagreement"]),
             additive_notes=tuple(str(n) for n in d["additive_notes"]),
+            additive_status=AdditiveStatus(d.get("additive_status", AdditiveStatus.NONE.value)),
+            additive_uncertainty=energy(d.get("additive_uncertainty"), None),
+            additive_caveats=tuple(str(n) for n in d.get("additive_caveats", ())),
         )
 
 

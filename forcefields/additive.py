@@ -1,97 +1,116 @@
-"""The chemist's additive estimate: A-values plus gauche-butane and syn-1,3-diaxial increments.
+"""The chemist's additive estimate: ring- and position-specific A-values plus pair increments.
 
 :class:`AdditiveModel` scores one conformer by adding tabulated increments for the
 substituents of every six-membered ring that is a chair in the given coordinates. It is
 the quick estimate a chemist makes by hand; chairbuild compares it with the force-field
-result and flags crowded rings where additivity fails.
+result and flags rings where additivity fails.
 
 The increments, each with its source and a flag (P = primary paper seen, S = seen only in
-a secondary compilation, M = from memory, not verified), are in
-``forcefields/data/increments.csv``; the table is read at first use and cached
-(:func:`load_increments`). Values are stored in kcal/mol and converted with
+a secondary compilation, M = from memory, not verified), its conditions (temperature,
+solvent, phase) and the range quoted for it, are in ``forcefields/data/increments.csv``;
+the table is read at first use and cached (:func:`load_increments`). Values are stored in
+the unit they were published in (kcal/mol or kJ/mol, column ``unit``) and converted with
 :data:`chairbuild.constants.KCAL_TO_KJ`; every energy this module returns is in kJ/mol.
 
-Scheme and bookkeeping
-----------------------
-For each ring whose Cremer–Pople shape (:func:`chairbuild.describe.describe_ring`) is a
-chair, with substituents labelled axial/equatorial by
-:func:`chairbuild.describe.substituent_position`:
+Which increment is used
+-----------------------
+Each ring is typed and numbered by :func:`chairbuild.forcefields.ring_types.classify_ring`
+(tetrahydropyran, 1,3-dioxane, piperidine, morpholine, thiane, cyclohexanone, ...; positions
+C2, C3, N1, ... from the heteroatom). For an axial substituent X at position P of ring type R
+the lookup takes, in this order:
 
-1. **A-value.** Each axial substituent on an sp3 ring carbon costs the A-value of its
-   group, A = ΔG°(axial − equatorial) of the monosubstituted cyclohexane. An equatorial
-   substituent costs nothing. Geminal substituents are scored position by position (the
-   axial one pays its A-value); their mutual gauche relation is the same in both chairs
-   and is not counted.
-2. **Gauche-butane.** Each pair of substituents on adjacent ring carbons that is gauche
-   (equatorial/equatorial and axial/equatorial; the trans-diaxial pair is anti and costs
-   nothing) adds one gauche-butane increment when both groups are of the table's
-   ``alkyl`` class (CH3, C2H5, CH(CH3)2, C(CH3)3). This is the usual cyclohexane
-   bookkeeping (Eliel, Wilen & Mander, *Stereochemistry of Organic Compounds*, 1994): an
-   axial methyl has two gauche-butane interactions with the ring bonds C2–C3 and C6–C5,
-   and these are what its A-value measures (the table's A(CH3) = 1.74 kcal/mol is
-   exactly twice its gauche-butane 0.87). The substituent/substituent gauche interaction
-   of a vicinal pair is absent from the monosubstituted rings the A-values come from, so
-   adding it counts nothing twice. An equatorial group is anti to both ring bonds and has
-   no ring gauche interaction.
-3. **Syn-1,3-diaxial.** Two non-hydrogen substituents axial on the same face at ring
-   positions 1 and 3 interact directly. Following the bookkeeping of Allinger & Miller
-   (J. Am. Chem. Soc. 1961, 83, 2145; flagged M), the CH3/CH3 syn-axial interaction
-   (3.7 kcal/mol) *replaces* one CH3/H syn-axial interaction of each methyl, each of
-   which is half that methyl's A-value. The pair therefore adds the 3.7 kcal/mol term
-   plus one term of −A/2 for each of the two groups (kind ``"syn-axial X/H
-   replaced"``), on top of the two A-values: the diaxial conformer of
-   cis-1,3-dimethylcyclohexane is estimated at 1.74/2 + 1.74/2 + 3.7 = 5.44 kcal/mol
-   above the diequatorial one.
+1. the A-value row for X at P of R (``THP-C3-CH3``: 3-methyltetrahydropyran);
+2. an anomeric row for X at P of R (``ANO-THP-C2-Cl``): it is published as the extra axial
+   preference relative to cyclohexane, so the term is added beside the cyclohexane A-value
+   of X, which is then the base the anomeric value is measured against, not a fallback;
+3. the cyclohexane A-value of X: in cyclohexane itself, or as a *named fallback* where the
+   substituent's environment is that of cyclohexane (sp3 carbons one and two bonds away
+   along the ring; :attr:`~chairbuild.forcefields.ring_types.RingType.cyclohexane_like`);
+   the term's ``fallback`` field says so;
+4. otherwise nothing: the estimate lacks a term and says "increment unknown for X at
+   position P of R".
+
+An equatorial substituent costs nothing (A-values are axial-minus-equatorial), so an
+unknown increment matters only for an axial substituent or a pair.
+
+Pair terms, on chairs:
+
+* **Gauche.** Each pair of substituents on adjacent ring atoms that is gauche
+  (equatorial/equatorial and axial/equatorial; the trans-diaxial pair is anti) adds the
+  table's gauche increment for the two groups: ``gauche-butane`` for two groups of the
+  ``alkyl`` class (CH3, C2H5, CH(CH3)2, C(CH3)3; Eliel, Wilen & Mander 1994: an axial methyl
+  has two gauche-butane interactions with the ring, which is what its A-value measures, so
+  the table's A(CH3) = 1.74 kcal/mol is twice its gauche-butane 0.87), ``gauche-F/F`` for two
+  fluorines (derived from trans-1,2-difluorocyclohexane in the vapour). A substituent/
+  substituent gauche interaction is absent from the monosubstituted rings the A-values come
+  from, so adding it counts nothing twice. A gauche pair without a row is a missing term.
+* **Syn-1,3-diaxial.** Two non-hydrogen substituents axial on the same face at ring positions
+  1 and 3 interact directly. Following the bookkeeping of Allinger & Miller (J. Am. Chem.
+  Soc. 1961, 83, 2145; flagged M), the R/R' interaction *replaces* one R/H syn-axial
+  interaction of each group, each half that group's A-value: the pair adds the R/R' term plus
+  one term of −A/2 for each group (kind ``"syn-axial X/H replaced"``), on top of the two
+  A-values. The most specific row applies: the 1,3-dioxane C4/C6 and C2/C4 Me/Me values
+  (Pihlaja et al. 2020), else the cyclohexane CH3/CH3 value where both positions are
+  cyclohexane-like; a syn pair without a row is a missing term. cis-1,3-Dimethylcyclohexane
+  diaxial: 1.74/2 + 1.74/2 + 3.7 = 5.44 kcal/mol above diequatorial (Allinger & Miller give
+  ΔH ≈ 5.5).
+* **Geminal.** Two groups on one ring carbon are scored position by position (the axial one
+  pays its A-value); their mutual gauche relation is the same in both chairs. Where the
+  table has a geminal correction for the axial/equatorial pair (``gem-C6H5/CH3``, from
+  1-methyl-1-phenylcyclohexane), it is added to the chair with the first group axial.
+  A geminal pair without a row needs none, so it is not a missing term.
 
 Worked examples with the table's values (kcal/mol; × 4.184 for kJ/mol): axial
-methylcyclohexane 1.74; trans-1,2-dimethyl diequatorial 0.87 (one gauche), diaxial
-3.48 (two A-values, the methyls anti); cis-1,2-dimethyl 1.74 + 0.87 = 2.61;
-cis-1,4-dimethyl 1.74, trans-1,4-dimethyl diequatorial 0.
+methylcyclohexane 1.74; trans-1,2-dimethyl diequatorial 0.87 (one gauche), diaxial 3.48
+(two A-values, the methyls anti); cis-1,2-dimethyl 1.74 + 0.87 = 2.61; cis-1,4-dimethyl
+1.74; axial 3-methyltetrahydropyran 1.43; axial 2-chlorotetrahydropyran
+0.53 − 2.12 = −1.59 (axial preferred).
 
-What is not scored
-------------------
-The estimate is only as complete as the table; everything that gets no increment is
-reported by :meth:`AdditiveModel.unscored` (and :attr:`AdditiveEstimate.unscored`), so
-that the result can mark the estimate as partial:
+Uncertainty and what is not scored
+----------------------------------
+Every term carries the half-width of the range quoted for its value
+(:attr:`AdditiveTerm.uncertainty`; 0 where the sources give one number); the family
+comparison adds them up and widens the disagreement threshold by that much.
 
-* a ring that is not a chair (twist-boat, boat, half-chair, ...): no terms for that
-  ring, and the note names the ring index and its shape. A non-chair ring's energy is
-  therefore *not* estimated: :meth:`AdditiveModel.energy` of such a conformer only sums
-  the other rings and must not be compared with a chair's;
-* substituents on ring heteroatoms (N-methyl, N–H) and on sp2 ring atoms;
-* groups absent from the table (propyl, tolyl, ...);
-* ring-fusion and spiro bonds (a substituent bonded through a ring bond). A fused ring
-  (decalin) is left unscored: counting the other ring's bonds as alkyl substituents
-  scores a shared gauche interaction in both rings, and the cis/trans-decalin difference
-  that would check a corrected count is not in this project's source material;
-* pairs of scored groups with no pair increment in the table (e.g. a gauche Cl/CH3 pair
-  or a syn-diaxial OH/CH3 pair). A pair in which one group is itself unscored is covered
-  by that group's own note and not reported again.
-
-Scored but approximate terms are listed in :attr:`AdditiveEstimate.caveats`: A-values
-that are lower bounds (C(CH3)3), and cyclohexane A-values transferred to a ring that
-contains a heteroatom or an sp2 atom.
+:attr:`AdditiveEstimate.unscored` lists the terms the estimate lacks, one message each:
+rings that are not chairs (twist-boat, boat, ...; a non-chair ring's energy is not
+estimated, so :meth:`AdditiveModel.energy` of such a conformer only sums the other rings),
+axial substituents with no increment at their position (groups absent from the table,
+substituents on ring heteroatoms other than the tabulated N–H, ring-fusion and spiro
+bonds), and gauche or syn-diaxial pairs without an increment. Substituents of sp2 ring atoms
+(the C=O of a cyclohexanone, an amide nitrogen's acyl group) have no axial or equatorial
+position and are not scored. :attr:`AdditiveEstimate.caveats` lists scored but approximate
+terms: generic fallbacks and lower bounds (C(CH3)3).
 """
 
 from __future__ import annotations
 
-import csv
-import enum
-import functools
 import itertools
 from collections.abc import Sequence
 from dataclasses import dataclass
-from pathlib import Path
 
 import numpy as np
 from rdkit import Chem
 
-from chairbuild.constants import KCAL_TO_KJ
 from chairbuild.describe import describe_ring, mean_plane_normal, substituent_position
-from chairbuild.errors import ForceFieldError, InputError
+from chairbuild.errors import InputError
 from chairbuild.result import AdditiveTerm, Position, RingShape
 from chairbuild.rings import RingAnalysis
 from chairbuild.forcefields.base import EnergyModel
+from chairbuild.forcefields.increments import (
+    HYDROGEN,
+    INCREMENTS_PATH,
+    Bound,
+    Flag,
+    Increment,
+    IncrementKind,
+    IncrementTable,
+    _Reason,
+    load_increments,
+    match_group,
+    read_increments,
+)
+from chairbuild.forcefields.ring_types import CYCLOHEXANE, RingType, classify_ring
 
 __all__ = [
     "IncrementKind",
@@ -105,269 +124,8 @@ __all__ = [
     "read_increments",
     "match_group",
     "INCREMENTS_PATH",
+    "HYDROGEN",
 ]
-
-#: The increments table shipped with the package.
-INCREMENTS_PATH = Path(__file__).parent / "data" / "increments.csv"
-
-_COLUMNS = (
-    "key",
-    "kind",
-    "class",
-    "group_smarts_or_name",
-    "value_kcal",
-    "bound",
-    "conditions",
-    "source",
-    "flag",
-    "note",
-)
-
-
-class IncrementKind(str, enum.Enum):
-    """Kind of a table row."""
-
-    A_VALUE = "A-value"
-    GAUCHE = "gauche-butane"
-    SYN_DIAXIAL = "syn-1,3-diaxial"
-    #: Published value kept for comparison; not used in the estimate.
-    REFERENCE = "reference"
-
-
-class Flag(str, enum.Enum):
-    """How a value was verified."""
-
-    PRIMARY = "P"
-    SECONDARY = "S"
-    MEMORY = "M"
-
-
-class Bound(str, enum.Enum):
-    """Whether a value is a measurement or a lower bound."""
-
-    EXACT = "="
-    LOWER = ">"
-
-
-class _Reason(str, enum.Enum):
-    """Why a substituent gets no increment."""
-
-    HETEROATOM = "on a ring heteroatom"
-    SP2 = "on an sp2 ring atom"
-    RING_BOND = "ring-fusion or spiro bond"
-    NOT_IN_TABLE = "group not in the increments table"
-
-
-@dataclass(frozen=True)
-class Increment:
-    """One row of the increments table.
-
-    Attributes
-    ----------
-    key : str
-        Unique row key; for A-values the group name used in messages (``"CH3"``).
-    kind : IncrementKind
-    group_class : str
-        Class of an A-value group (``"alkyl"`` or empty), used by pair rows.
-    pattern : str
-        A-value rows: SMARTS of the group rooted at its attachment atom. Pair rows:
-        ``"X/Y"`` with X, Y a key or a class. Reference rows: a description.
-    value_kcal : float
-        kcal/mol.
-    bound : Bound
-    conditions, source, note : str
-    flag : Flag
-    """
-
-    key: str
-    kind: IncrementKind
-    group_class: str
-    pattern: str
-    value_kcal: float
-    bound: Bound
-    conditions: str
-    source: str
-    flag: Flag
-    note: str
-
-    @property
-    def value_kj(self) -> float:
-        """The value in kJ/mol."""
-        return self.value_kcal * KCAL_TO_KJ
-
-    @property
-    def citation(self) -> str:
-        """Source with its flag, as written into :class:`AdditiveTerm`."""
-        text = f"{self.source} [{self.flag.value}]"
-        return text + "; lower bound" if self.bound is Bound.LOWER else text
-
-    def covers_pair(self, key_a: str, class_a: str, key_b: str, class_b: str) -> bool:
-        """Whether this pair row applies to groups (key_a, class_a) and (key_b, class_b)."""
-        left, _, right = self.pattern.partition("/")
-        ok_a = {key_a, class_a} - {""}
-        ok_b = {key_b, class_b} - {""}
-        return (left in ok_a and right in ok_b) or (left in ok_b and right in ok_a)
-
-
-@dataclass(frozen=True)
-class IncrementTable:
-    """The increments table: rows plus compiled group patterns."""
-
-    rows: tuple[Increment, ...]
-    patterns: tuple[tuple[Increment, Chem.Mol], ...]
-
-    def __getitem__(self, key: str) -> Increment:
-        for row in self.rows:
-            if row.key == key:
-                return row
-        raise KeyError(key)
-
-    def a_value(self, key: str) -> Increment:
-        """The A-value row of group ``key``."""
-        row = self[key]
-        if row.kind is not IncrementKind.A_VALUE:
-            raise KeyError(f"{key!r} is not an A-value row")
-        return row
-
-    def pair(self, kind: IncrementKind, key_a: str, key_b: str) -> Increment | None:
-        """The pair increment of ``kind`` for groups ``key_a`` and ``key_b``, or None."""
-        class_a = self.a_value(key_a).group_class
-        class_b = self.a_value(key_b).group_class
-        for row in self.rows:
-            if row.kind is kind and row.covers_pair(key_a, class_a, key_b, class_b):
-                return row
-        return None
-
-
-def read_increments(path: str | Path) -> IncrementTable:
-    """Read and validate an increments table (CSV with the columns of the shipped file).
-
-    Raises
-    ------
-    ForceFieldError
-        On a missing column, a duplicate key, an unknown kind, flag or bound, a value
-        that is not a number, an empty source or an invalid SMARTS.
-    """
-    path = Path(path)
-    try:
-        with path.open(newline="", encoding="utf-8") as handle:
-            reader = csv.DictReader(handle)
-            missing = [c for c in _COLUMNS if c not in (reader.fieldnames or ())]
-            if missing:
-                raise ForceFieldError(f"{path.name}: missing columns {', '.join(missing)}")
-            raw = list(reader)
-    except OSError as exc:
-        raise ForceFieldError(f"cannot read increments table {path}: {exc}") from exc
-    rows: list[Increment] = []
-    patterns: list[tuple[Increment, Chem.Mol]] = []
-    seen: set[str] = set()
-    for line, rec in enumerate(raw, start=2):
-        where = f"{path.name} line {line}"
-        if None in rec or any(rec[c] is None for c in _COLUMNS):
-            raise ForceFieldError(f"{where}: wrong number of fields")
-        key = rec["key"].strip()
-        if not key or key in seen:
-            raise ForceFieldError(f"{where}: empty or duplicate key {key!r}")
-        seen.add(key)
-        try:
-            kind = IncrementKind(rec["kind"].strip())
-            flag = Flag(rec["flag"].strip())
-            bound = Bound(rec["bound"].strip())
-            value = float(rec["value_kcal"])
-        except ValueError as exc:
-            raise ForceFieldError(f"{where}: {exc}") from exc
-        if not np.isfinite(value):
-            raise ForceFieldError(f"{where}: value {value} is not finite")
-        if not rec["source"].strip():
-            raise ForceFieldError(f"{where}: no source for {key!r}")
-        row = Increment(
-            key=key,
-            kind=kind,
-            group_class=rec["class"].strip(),
-            pattern=rec["group_smarts_or_name"].strip(),
-            value_kcal=value,
-            bound=bound,
-            conditions=rec["conditions"].strip(),
-            source=rec["source"].strip(),
-            flag=flag,
-            note=rec["note"].strip(),
-        )
-        if kind is IncrementKind.A_VALUE:
-            query = Chem.MolFromSmarts("[#0]-" + row.pattern)
-            if query is None:
-                raise ForceFieldError(f"{where}: invalid SMARTS {row.pattern!r}")
-            patterns.append((row, query))
-        elif kind in (IncrementKind.GAUCHE, IncrementKind.SYN_DIAXIAL) and row.pattern.count("/") != 1:
-            raise ForceFieldError(f"{where}: pair row needs 'X/Y', got {row.pattern!r}")
-        rows.append(row)
-    return IncrementTable(rows=tuple(rows), patterns=tuple(patterns))
-
-
-@functools.lru_cache(maxsize=1)
-def load_increments() -> IncrementTable:
-    """The shipped increments table, read at first call and cached."""
-    return read_increments(INCREMENTS_PATH)
-
-
-def match_group(mol: Chem.Mol, ring_atom: int, atom: int, table: IncrementTable | None = None) -> str | None:
-    """Table key of the group bonded to ``ring_atom`` through ``atom``, or None.
-
-    The branch that starts at ``atom`` (everything reachable without going back through
-    ``ring_atom``) is cut out with a dummy atom in place of the ring atom and matched
-    against each A-value row's SMARTS. A row matches only if its pattern covers *every*
-    heavy atom of the branch, so methyl, ethyl and isopropyl, or hydroxy, methoxy and
-    acetoxy, are told apart; hydrogens are checked through the SMARTS H counts.
-
-    Parameters
-    ----------
-    mol : rdkit.Chem.Mol
-        The molecule (explicit hydrogens or not).
-    ring_atom, atom : int
-        The ring atom and the group's first atom; they must be bonded.
-    table : IncrementTable, optional
-        Default: :func:`load_increments`.
-
-    Returns
-    -------
-    str or None
-        None for a hydrogen, a bond that is in a ring (fusion, spiro) and a group that no
-        row describes.
-
-    Raises
-    ------
-    InputError
-        When the two atoms are not bonded.
-    ForceFieldError
-        When two table rows match the same group (an ambiguous table).
-    """
-    table = table or load_increments()
-    bond = mol.GetBondBetweenAtoms(int(ring_atom), int(atom))
-    if bond is None:
-        raise InputError(f"atoms {ring_atom} and {atom} are not bonded")
-    if bond.IsInRing() or mol.GetAtomWithIdx(int(atom)).GetAtomicNum() == 1:
-        return None
-    cut = Chem.FragmentOnBonds(mol, [bond.GetIdx()], addDummies=True)
-    mapping: list[tuple[int, ...]] = []
-    try:
-        frags = Chem.GetMolFrags(cut, asMols=True, fragsMolAtomMapping=mapping)
-    except Exception:  # noqa: BLE001 - RDKit raises several types on sanitisation
-        return None
-    for frag, atoms in zip(frags, mapping):
-        if int(atom) in atoms:
-            local = atoms.index(int(atom))
-            break
-    else:  # pragma: no cover - the atom is always in one fragment
-        return None
-    heavy = sum(1 for a in frag.GetAtoms() if a.GetAtomicNum() > 1)
-    found = []
-    for row, query in table.patterns:
-        if query.GetNumAtoms() - 1 != heavy:
-            continue
-        if any(match[1] == local for match in frag.GetSubstructMatches(query, uniquify=False)):
-            found.append(row.key)
-    if len(found) > 1:
-        raise ForceFieldError(f"increments table is ambiguous: group at atom {atom} matches {', '.join(found)}")
-    return found[0] if found else None
 
 
 @dataclass(frozen=True)
@@ -380,10 +138,10 @@ class AdditiveEstimate:
         Sum of the terms (kJ/mol). Rings that are not chairs contribute nothing.
     terms : tuple of AdditiveTerm
     unscored : tuple of str
-        What got no increment (non-chair rings, heteroatom substituents, groups or pairs
-        absent from the table, ring-fusion bonds).
+        The terms the estimate lacks, one message each ("increment unknown for X at
+        position Y", non-chair rings).
     caveats : tuple of str
-        Terms that are scored but approximate (lower bounds, transferred A-values).
+        Terms that are scored but approximate (generic fallbacks, lower bounds).
     """
 
     energy: float
@@ -393,8 +151,13 @@ class AdditiveEstimate:
 
     @property
     def partial(self) -> bool:
-        """True when something was left unscored."""
+        """True when the estimate lacks a term."""
         return bool(self.unscored)
+
+    @property
+    def uncertainty(self) -> float:
+        """Sum of the quoted ranges of the terms (kJ/mol)."""
+        return float(sum(abs(t.uncertainty) for t in self.terms))
 
 
 @dataclass(frozen=True)
@@ -408,10 +171,13 @@ class _Site:
     label: str
     key: str | None
     reason: _Reason | None
+    on_sp2: bool
 
     def describe(self) -> str:
         if self.reason is _Reason.RING_BOND:
             return f"the ring bond to atom {self.atom}"
+        if self.key is not None:
+            return f"{self.key} (atom {self.atom})"
         return f"{self.label} (atom {self.atom})"
 
 
@@ -420,12 +186,14 @@ class _Placed:
     site: _Site
     position: Position
     side: float
+    #: Rows of the site's A-value terms when axial (empty: unknown or equatorial).
+    a_rows: tuple[Increment, ...] = ()
 
 
 class AdditiveModel(EnergyModel):
-    """Additive increment estimate (A-values, gauche-butane, syn-1,3-diaxial) of one molecule.
+    """Additive increment estimate (ring- and position-specific A-values, pair terms) of one molecule.
 
-    See the module docstring for the scheme, the bookkeeping and what is left unscored.
+    See the module docstring for the lookup, the bookkeeping and what is left unscored.
 
     Parameters
     ----------
@@ -476,10 +244,16 @@ class AdditiveModel(EnergyModel):
         else:
             subs = self._find_substituents(ring_list)
         self._rings: tuple[tuple[int, ...], ...] = tuple(ring_list)
+        self._types: tuple[RingType, ...] = tuple(classify_ring(mol, ring) for ring in ring_list)
         self._sites: tuple[tuple[_Site, ...], ...] = tuple(
             tuple(self._site(r, ring_atom, atom, label) for (r, ring_atom, atom, label) in subs if r == index)
             for index in range(len(ring_list))
         )
+
+    @property
+    def ring_types(self) -> tuple[RingType, ...]:
+        """Type and position labels of each scored ring."""
+        return self._types
 
     # ------------------------------------------------------------------ set-up
     @property
@@ -536,17 +310,17 @@ class AdditiveModel(EnergyModel):
         pos = self._rings[ring_index].index(ring_atom)
         host = self._mol.GetAtomWithIdx(ring_atom)
         bond = self._mol.GetBondBetweenAtoms(ring_atom, atom)
-        key = None
-        if host.GetAtomicNum() != 6:
-            reason: _Reason | None = _Reason.HETEROATOM
-        elif host.GetHybridization() != Chem.HybridizationType.SP3:
-            reason = _Reason.SP2
-        elif bond is not None and bond.IsInRing():
+        on_sp2 = host.GetHybridization() != Chem.HybridizationType.SP3
+        key: str | None = None
+        reason: _Reason | None = None
+        if bond is not None and bond.IsInRing():
             reason = _Reason.RING_BOND
+        elif self._mol.GetAtomWithIdx(atom).GetAtomicNum() == 1:
+            key = HYDROGEN
         else:
             key = match_group(self._mol, ring_atom, atom, self._table)
             reason = None if key is not None else _Reason.NOT_IN_TABLE
-        return _Site(ring_index, pos, ring_atom, atom, label, key, reason)
+        return _Site(ring_index, pos, ring_atom, atom, label, key, reason, on_sp2)
 
     # -------------------------------------------------------------- evaluation
     def _check_coords(self, coords: np.ndarray) -> np.ndarray:
@@ -558,7 +332,7 @@ class AdditiveModel(EnergyModel):
         return xyz
 
     def evaluate(self, coords: np.ndarray) -> AdditiveEstimate:
-        """Terms, total, unscored parts and caveats of the estimate at ``coords`` (Å).
+        """Terms, total, missing terms and caveats of the estimate at ``coords`` (Å).
 
         Raises
         ------
@@ -574,75 +348,165 @@ class AdditiveModel(EnergyModel):
             if shape is not RingShape.CHAIR:
                 unscored.append(f"ring {index}: {shape.value}, not a chair; only chairs are scored")
                 continue
+            rtype = self._types[index]
             normal = mean_plane_normal(xyz[list(ring)])
             placed: list[_Placed] = []
             for site in self._sites[index]:
-                if site.key is None:
-                    reason = site.reason.value if site.reason else ""
-                    unscored.append(f"ring {index}: no increment for {site.describe()} at atom {site.ring_atom} ({reason})")
-                    continue
+                if site.on_sp2:
+                    continue  # no axial or equatorial position (a C=O of the ring, an amide's acyl group)
                 position, _ = substituent_position(xyz, ring, site.ring_atom, site.atom, RingShape.CHAIR)
                 side = float(np.dot(xyz[site.atom] - xyz[site.ring_atom], normal))
-                placed.append(_Placed(site, position, side))
+                rows: tuple[Increment, ...] = ()
                 if position is Position.AXIAL:
-                    row = self._table.a_value(site.key)
-                    terms.append(AdditiveTerm(row.kind.value, (site.ring_atom, site.atom), row.value_kj, row.citation))
-                    if row.bound is Bound.LOWER:
-                        caveats.append(f"ring {index}: A-value of {site.key} at atom {site.ring_atom} is a lower bound")
-            self._pairs(index, placed, terms, unscored)
-            if placed and self._transferred(ring):
-                caveats.append(
-                    f"ring {index}: cyclohexane A-values transferred to a ring with a heteroatom or sp2 atom"
-                )
+                    rows = self._a_terms(index, rtype, site, terms, unscored, caveats)
+                placed.append(_Placed(site, position, side, rows))
+            self._pairs(index, rtype, placed, terms, unscored, caveats)
         energy = float(sum(t.value for t in terms))
         return AdditiveEstimate(energy, tuple(terms), tuple(unscored), tuple(caveats))
 
-    def _transferred(self, ring: tuple[int, ...]) -> bool:
-        return any(
-            self._mol.GetAtomWithIdx(a).GetAtomicNum() != 6
-            or self._mol.GetAtomWithIdx(a).GetHybridization() != Chem.HybridizationType.SP3
-            for a in ring
+    def _a_terms(
+        self, index: int, rtype: RingType, site: _Site, terms: list[AdditiveTerm], unscored: list[str],
+        caveats: list[str],
+    ) -> tuple[Increment, ...]:
+        """A-value (and anomeric) terms of an axial site; the rows used, () when unknown."""
+        where = rtype.where(site.ring_atom)
+        atoms = (site.ring_atom, site.atom)
+        if site.key is None:
+            reason = site.reason.value if site.reason else ""
+            unscored.append(f"ring {index}: increment unknown for {site.describe()} at {where} ({reason})")
+            return ()
+        pos = rtype.position_of(site.ring_atom)
+        applies = f"{site.key} axial at {where}"
+        specific = self._table.specific(IncrementKind.A_VALUE, site.key, rtype.name, pos)
+        if specific is not None:
+            terms.append(_term(specific, atoms, applies))
+            self._bound_caveat(index, site, specific, caveats)
+            return (specific,)
+        if site.key == HYDROGEN:
+            unscored.append(f"ring {index}: increment unknown for H (atom {site.atom}) at {where}")
+            return ()
+        generic = self._table.a_value(site.key)
+        anomeric = self._table.specific(IncrementKind.ANOMERIC, site.key, rtype.name, pos)
+        if anomeric is not None:
+            terms.append(_term(generic, atoms, applies + " (cyclohexane base of the anomeric value)"))
+            terms.append(_term(anomeric, atoms, f"anomeric preference of axial {site.key} at {where}"))
+            self._bound_caveat(index, site, generic, caveats)
+            return (generic, anomeric)
+        if rtype.name == CYCLOHEXANE:
+            terms.append(_term(generic, atoms, applies))
+            self._bound_caveat(index, site, generic, caveats)
+            return (generic,)
+        if rtype.cyclohexane_like[site.ring_pos]:
+            why = f"no {rtype.name} {pos} value for {site.key}; cyclohexane A-value used (cyclohexane-like position)"
+            terms.append(_term(generic, atoms, applies, fallback=why))
+            caveats.append(f"ring {index}: {why}, atom {site.ring_atom}")
+            self._bound_caveat(index, site, generic, caveats)
+            return (generic,)
+        unscored.append(
+            f"ring {index}: increment unknown for {site.key} (atom {site.atom}) at {where} "
+            "(no value for this position; the cyclohexane value does not transfer next to a heteroatom or sp2 atom)"
         )
+        return ()
 
-    def _pairs(self, index: int, placed: list[_Placed], terms: list[AdditiveTerm], unscored: list[str]) -> None:
-        """Gauche and syn-1,3-diaxial pair terms of one chair ring."""
+    @staticmethod
+    def _bound_caveat(index: int, site: _Site, row: Increment, caveats: list[str]) -> None:
+        if row.bound is Bound.LOWER:
+            caveats.append(f"ring {index}: A-value of {site.key} at atom {site.ring_atom} is a lower bound")
+
+    def _pairs(
+        self, index: int, rtype: RingType, placed: list[_Placed], terms: list[AdditiveTerm], unscored: list[str],
+        caveats: list[str],
+    ) -> None:
+        """Gauche, geminal and syn-1,3-diaxial pair terms of one chair ring."""
         for a, b in itertools.combinations(placed, 2):
+            if HYDROGEN in (a.site.key, b.site.key):
+                continue  # an N-H is part of its own A-value; no pair rows for H
             gap = abs(a.site.ring_pos - b.site.ring_pos)
             gap = min(gap, 6 - gap)
             both_axial = a.position is Position.AXIAL and b.position is Position.AXIAL
             atoms = (a.site.atom, a.site.ring_atom, b.site.ring_atom, b.site.atom)
-            pair_name = f"{a.site.key}/{b.site.key} at atoms {a.site.ring_atom}, {b.site.ring_atom}"
-            if gap == 1 and not both_axial:
-                row = self._table.pair(IncrementKind.GAUCHE, a.site.key, b.site.key)
+            known = a.site.key is not None and b.site.key is not None
+            names = f"{a.site.describe()}/{b.site.describe()}"
+            pair_at = rtype.pair_positions(a.site.ring_atom, b.site.ring_atom)
+            if gap == 0:
+                if known and a.position is not b.position:
+                    ax, eq = (a, b) if a.position is Position.AXIAL else (b, a)
+                    row = self._table.pair(IncrementKind.GEMINAL, ax.site.key, eq.site.key, ordered=True)
+                    if row is not None and (rtype.name == CYCLOHEXANE or rtype.cyclohexane_like[a.site.ring_pos]):
+                        terms.append(_term(row, atoms, f"geminal {ax.site.key} axial/{eq.site.key} equatorial at {rtype.where(a.site.ring_atom)}"))
+            elif gap == 1 and not both_axial:
+                row = self._table.pair(IncrementKind.GAUCHE, a.site.key, b.site.key) if known else None
                 if row is None:
-                    unscored.append(f"ring {index}: no gauche increment for {pair_name}")
-                else:
-                    terms.append(AdditiveTerm(row.kind.value, atoms, row.value_kj, row.citation))
-            elif gap == 2 and both_axial and a.side * b.side > 0:
-                row = self._table.pair(IncrementKind.SYN_DIAXIAL, a.site.key, b.site.key)
-                if row is None:
-                    unscored.append(f"ring {index}: no syn-1,3-diaxial increment for {pair_name}")
+                    unscored.append(f"ring {index}: increment unknown for the gauche pair {names} at positions {pair_at} of {rtype.name}")
                     continue
-                terms.append(AdditiveTerm(row.kind.value, atoms, row.value_kj, row.citation))
-                for p in (a, b):
-                    a_row = self._table.a_value(p.site.key)
-                    terms.append(
-                        AdditiveTerm(
-                            f"syn-axial {p.site.key}/H replaced",
-                            (p.site.ring_atom, p.site.atom),
-                            -0.5 * a_row.value_kj,
-                            f"half of A({p.site.key}), {a_row.citation}; bookkeeping of {row.citation}",
-                        )
-                    )
+                fallback = "" if rtype.name == CYCLOHEXANE else f"cyclohexane gauche value used in {rtype.name}"
+                if fallback:
+                    caveats.append(f"ring {index}: {fallback} ({a.site.key}/{b.site.key} at atoms {a.site.ring_atom}, {b.site.ring_atom})")
+                terms.append(_term(row, atoms, f"gauche {a.site.key}/{b.site.key} at positions {pair_at} of {rtype.name}", fallback))
+            elif gap == 2 and both_axial and a.side * b.side > 0:
+                self._syn_pair(index, rtype, a, b, atoms, terms, unscored, caveats)
+
+    def _syn_pair(
+        self, index: int, rtype: RingType, a: _Placed, b: _Placed, atoms: tuple[int, ...], terms: list[AdditiveTerm],
+        unscored: list[str], caveats: list[str],
+    ) -> None:
+        positions = rtype.pair_positions(a.site.ring_atom, b.site.ring_atom)
+        names = f"{a.site.describe()}/{b.site.describe()}"
+        where = f"positions {positions} of {rtype.name}"
+        row = None
+        if a.site.key is not None and b.site.key is not None:
+            row = self._table.pair(IncrementKind.SYN_DIAXIAL, a.site.key, b.site.key, rtype.name, positions)
+        generic_ok = rtype.name == CYCLOHEXANE or (
+            rtype.cyclohexane_like[a.site.ring_pos] and rtype.cyclohexane_like[b.site.ring_pos]
+        )
+        if row is None or (row.generic and not generic_ok):
+            unscored.append(f"ring {index}: increment unknown for the syn-1,3-diaxial pair {names} at {where}")
+            return
+        fallback = "" if not row.generic or rtype.name == CYCLOHEXANE else f"cyclohexane syn-diaxial value used in {rtype.name}"
+        if fallback:
+            caveats.append(f"ring {index}: {fallback} ({a.site.key}/{b.site.key})")
+        terms.append(_term(row, atoms, f"syn-diaxial {a.site.key}/{b.site.key} at {where}", fallback))
+        for p in (a, b):
+            if not p.a_rows:
+                continue
+            base = p.a_rows[0]
+            terms.append(
+                AdditiveTerm(
+                    f"syn-axial {p.site.key}/H replaced",
+                    (p.site.ring_atom, p.site.atom),
+                    -0.5 * base.value_kj,
+                    f"half of A({p.site.key}), {base.citation}; bookkeeping of {row.citation}",
+                    increment=base.key,
+                    applies_to=f"one {p.site.key}/H syn-axial interaction at {rtype.where(p.site.ring_atom)}, replaced by the pair",
+                    conditions=base.conditions,
+                    fallback="",
+                    uncertainty=0.5 * base.range_kj,
+                )
+            )
 
     def terms(self, coords: np.ndarray) -> list[AdditiveTerm]:
         """The increments at ``coords`` (Å); values in kJ/mol, sources with their flags."""
         return list(self.evaluate(coords).terms)
 
     def unscored(self, coords: np.ndarray) -> list[str]:
-        """What gets no increment at ``coords``: non-chair rings (index and shape) and the rest."""
+        """The terms the estimate lacks at ``coords``: non-chair rings and unknown increments."""
         return list(self.evaluate(coords).unscored)
 
     def energy(self, coords: np.ndarray) -> float:
         """Sum of :meth:`terms` (kJ/mol). Non-chair rings contribute nothing (see :meth:`unscored`)."""
         return self.evaluate(coords).energy
+
+
+def _term(row: Increment, atoms: tuple[int, ...], applies_to: str, fallback: str = "") -> AdditiveTerm:
+    """The :class:`AdditiveTerm` of one table row."""
+    return AdditiveTerm(
+        row.kind.value,
+        atoms,
+        row.value_kj,
+        row.citation,
+        increment=row.key,
+        applies_to=applies_to,
+        conditions=row.conditions,
+        fallback=fallback,
+        uncertainty=row.range_kj,
+    )

@@ -103,7 +103,9 @@ def test_every_row_has_source_and_flag():
         assert None not in row, row
         assert row["source"].strip(), row["key"]
         assert row["flag"] in {"P", "S", "M"}, row["key"]
-        float(row["value_kcal"])
+        assert row["unit"] in {"kcal/mol", "kJ/mol"}, row["key"]
+        float(row["value"])
+        assert row["range"] == "" or float(row["range"]) >= 0, row["key"]
     a_keys = {r["key"] for r in rows if r["kind"] == "A-value"}
     assert set(REQUIRED_GROUPS) <= a_keys
 
@@ -138,7 +140,7 @@ def test_bad_table_is_rejected(tmp_path):
     with pytest.raises(ForceFieldError, match="X"):
         read_increments(bad)
     no_source = tmp_path / "nosource.csv"
-    no_source.write_text(header + "\nCH3,A-value,alkyl,[CH3],1.74,=,,,P,\n", encoding="utf-8")
+    no_source.write_text(header + "\nCH3,A-value,alkyl,[CH3],cyclohexane,,1.74,kcal/mol,,=,,,P,\n", encoding="utf-8")
     with pytest.raises(ForceFieldError, match="no source"):
         read_increments(no_source)
 
@@ -225,7 +227,7 @@ def test_13_dimethyl_cis_versus_trans_and_syn_diaxial():
     assert "Allinger & Miller" in syn[0].source and "[M]" in syn[0].source
     replaced = [t for t in cis.terms(aa) if t.kind == "syn-axial CH3/H replaced"]
     assert [t.value for t in replaced] == pytest.approx([-0.87 * KCAL] * 2, abs=_TOL)
-    assert not any(t.kind == "gauche-butane" for t in cis.terms(aa))
+    assert not any(t.kind == "gauche" for t in cis.terms(aa))
 
 
 def test_12_dimethyl_gauche_bookkeeping():
@@ -237,7 +239,7 @@ def test_12_dimethyl_gauche_bookkeeping():
     cis = AdditiveModel(cis_mol, cis_ra)
     # trans diequatorial: the methyls are gauche: 1 x 0.87 kcal (Eliel, Wilen & Mander 1994, M)
     # = 3.64008 kJ
-    assert [t.kind for t in trans.terms(ee)] == ["gauche-butane"]
+    assert [t.kind for t in trans.terms(ee)] == ["gauche"]
     assert trans.energy(ee) == pytest.approx(3.64008, abs=_TOL)
     # trans diaxial: the methyls are anti: 2 x A(CH3) = 3.48 kcal (Booth & Everett 1980)
     # = 14.56032 kJ, no gauche term
@@ -246,7 +248,7 @@ def test_12_dimethyl_gauche_bookkeeping():
     # diaxial - diequatorial = 3.48 - 0.87 = 2.61 kcal = 10.92024 kJ
     assert trans.energy(aa) - trans.energy(ee) == pytest.approx(10.92024, abs=_TOL)
     # cis (ax/eq): A + gauche = 1.74 + 0.87 = 2.61 kcal = 10.92024 kJ
-    assert sorted(t.kind for t in cis.terms(ae)) == ["A-value", "gauche-butane"]
+    assert sorted(t.kind for t in cis.terms(ae)) == ["A-value", "gauche"]
     assert cis.energy(ae) == pytest.approx(10.92024, abs=_TOL)
 
 
@@ -273,7 +275,9 @@ def test_group_absent_from_table_is_unscored():
     mol, ra, (ax,) = _pick("CCCC1CCCCC1", _chair("axial"))
     est = AdditiveModel(mol, ra).evaluate(ax)
     assert est.terms == () and est.partial
-    assert est.unscored == ("ring 0: no increment for CCC (atom 2) at atom 3 (group not in the increments table)",)
+    assert est.unscored == (
+        "ring 0: increment unknown for CCC (atom 2) at atom 3 of cyclohexane (group not in the increments table)",
+    )
 
 
 def test_twist_boat_is_unscored():
@@ -284,19 +288,33 @@ def test_twist_boat_is_unscored():
 
 
 def test_heteroatom_fusion_and_pair_gaps_are_reported():
-    mol, ra, (chair,) = _pick("CN1CCCCC1", _chair("equatorial"))
-    notes = AdditiveModel(mol, ra).unscored(chair)
-    assert notes == ["ring 0: no increment for C (atom 0) at atom 1 (on a ring heteroatom)"]
+    # an equatorial N-methyl costs nothing (A-values are axial - equatorial): nothing is missing
+    mol, ra, confs = _ensemble("CN1CCCCC1")
+    chairs = [x for x in confs if describe_ring(x, ra.rings[0].atoms).shape.value == "chair"]
+    model = AdditiveModel(mol, [ra.rings[0].atoms])
+    by_pos = {}
+    for xyz in chairs:
+        me = substituent_position(xyz, ra.rings[0].atoms, 1, 0, describe_ring(xyz, ra.rings[0].atoms).shape)[0]
+        by_pos.setdefault(me.value, xyz)
+    assert model.unscored(by_pos["equatorial"]) == []
+    # an axial N-methyl has no piperidine N1 value and no cyclohexane value transfers to a nitrogen
+    assert model.unscored(by_pos["axial"]) == [
+        "ring 0: increment unknown for CH3 (atom 0) at position N1 of piperidine (atom 1) (no value for this "
+        "position; the cyclohexane value does not transfer next to a heteroatom or sp2 atom)"
+    ]
 
     mol, ra, confs = _ensemble("C1CC[C@H]2CCCC[C@@H]2C1")  # trans-decalin
     chairs = [x for x in confs if all(describe_ring(x, r.atoms).shape.value == "chair" for r in ra.rings)]
     est = AdditiveModel(mol, ra).evaluate(chairs[0])
     assert est.terms == ()
-    assert len(est.unscored) == 4 and all("ring-fusion or spiro bond" in n for n in est.unscored)
+    # the two equatorial fusion bonds of each ring are vicinal: a gauche pair with no increment
+    assert len(est.unscored) == 2 and all("gauche pair the ring bond" in n for n in est.unscored)
 
     # trans-1,2-dichloro, diequatorial: A-values exist, a Cl/Cl gauche increment does not
     mol, ra, (ee,) = _pick("Cl[C@@H]1CCCC[C@H]1Cl", _chair("equatorial", "equatorial"))
-    assert AdditiveModel(mol, ra).unscored(ee) == ["ring 0: no gauche increment for Cl/Cl at atoms 1, 6"]
+    assert AdditiveModel(mol, ra).unscored(ee) == [
+        "ring 0: increment unknown for the gauche pair Cl (atom 0)/Cl (atom 7) at positions C1/C2 of cyclohexane"
+    ]
 
 
 # -------------------------------------------------------------------- API and errors
