@@ -138,7 +138,10 @@ class AnalysisOptions:
             "solvation": self.dft_solvation_model,
         }
         if self.solvent is not None and not any(st.engine is not Engine.MMFF94 for st in chain.stages):
-            raise OptionError("a solvent needs the GFN2-xTB level or a DFT stage: add method='gfn2', rerank='gfn2' or a stage")
+            raise OptionError(
+                f"{spell('solvent')} needs the GFN2-xTB level: add {spell('method', 'gfn2')} or "
+                f"{spell('rerank', 'gfn2')} (or a gfn2/dft stage)"
+            )
         stages = tuple(with_defaults(st, self.solvent, self.solvation_model, dft_defaults) for st in chain.stages)
         for st in stages:
             _check_stage_settings(st)

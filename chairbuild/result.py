@@ -753,6 +753,7 @@ class Ensemble:
                 outside_window=int(d.get("outside_window", 0)),
                 ranking_formula=str(d.get("ranking_formula", "")),
                 ranking_terms=tuple(tuple(t) for t in d.get("ranking_terms", ())),
+                couplings=_couplings_from_dict(d.get("couplings")),
             )
             # the notes written from numbers at output time are not stored as text
             generated = ens.window_note(unit)
@@ -813,6 +814,14 @@ def load_json(path: Any) -> Ensemble:
         data = data[0]
     return Ensemble.from_dict(data)
 
+
+
+def _couplings_from_dict(d: Mapping[str, Any] | None):
+    if d is None:
+        return None
+    from chairbuild.couplings.records import CouplingTable
+
+    return CouplingTable.from_dict(d)
 
 
 def _jsonable(value: Any) -> Any:

@@ -320,7 +320,7 @@ def result_options(opts) -> dict[str, Any]:
     """The options of an :class:`~chairbuild.pipeline.AnalysisOptions` that change results (JSON-ready)."""
     out = {}
     for name in sorted(opts.__dataclass_fields__):
-        if name in ("threads", "progress", "extra"):
+        if name in ("threads", "progress", "extra", "chain", "cache"):  # chain is derived from the others
             continue
         value = getattr(opts, name)
         out[name] = value.value if isinstance(value, enum.Enum) else value
