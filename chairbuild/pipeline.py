@@ -23,7 +23,7 @@ __all__ = ["AnalysisOptions", "analyze", "analyze_all", "DEFAULT_WINDOW_KJ"]
 
 #: Default energy window (kJ/mol): keeps cyclohexane's twist-boat (about 23 kJ/mol above the chair).
 DEFAULT_WINDOW_KJ = 30.0
-#: Default DFT level of dft stages, chosen by measurement (README, "DFT refinement").
+#: Default DFT level of dft stages, chosen by measurement (README, "Chains of levels and DFT").
 DEFAULT_DFT_FUNCTIONAL = "b3lyp"
 DEFAULT_DFT_BASIS = "def2-svp"
 
