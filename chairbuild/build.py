@@ -323,8 +323,18 @@ class _CoreProblem:
         targets = self.torsion_targets(states)
         best, best_dev = None, np.inf
         for guess in guesses[:_MAX_GUESSES]:
+            # "trf", not "lm": SciPy 1.17's MINPACK ("lm") gave a different fit from the same input on the
+            # first call in a process than on later calls, so built structures depended on what ran before
             fit = least_squares(
-                self.residuals, guess.ravel(), jac=self.jacobian, args=(targets,), method="lm", xtol=1e-4, ftol=1e-4, max_nfev=200
+                self.residuals,
+                guess.ravel(),
+                jac=self.jacobian,
+                args=(targets,),
+                method="trf",
+                x_scale=1.0,
+                xtol=1e-4,
+                ftol=1e-4,
+                max_nfev=200,
             )
             p = fit.x.reshape(-1, 3)
             tors = _dihedral_rad(p[self.quads])

@@ -40,6 +40,15 @@ class EnergyModel(abc.ABC):
     def energy(self, coords: np.ndarray) -> float:
         """Return the energy (kJ/mol) at ``coords`` (shape ``(n_atoms, 3)``, Å)."""
 
+    def reset(self) -> None:
+        """Forget state carried over from earlier evaluations (e.g. an SCF starting guess).
+
+        Called before each independent task (one conformer's optimisation, single point or
+        Hessian) so that its result depends only on its own input, never on which tasks
+        the same model (or the same worker process) ran before. Models without such state
+        keep this no-op.
+        """
+
     def energy_and_gradient(self, coords: np.ndarray) -> tuple[float, np.ndarray]:
         """Return the energy (kJ/mol) and its gradient (kJ mol^-1 Å^-1, shape ``(n_atoms, 3)``)."""
         from chairbuild.errors import ForceFieldError

@@ -86,6 +86,8 @@ _MAX_ATOMIC_NUMBER = 86
 _GRADIENT_TO_KJ_PER_A = HARTREE_TO_KJ * ANGSTROM_TO_BOHR
 #: tblite accuracy parameter used at most while finite-differencing a Hessian.
 _HESSIAN_ACCURACY = 0.1
+#: Restarts of L-BFGS-B when it stops (line search on SCF noise) with the gradient above gtol.
+_OPTIMISE_RESTARTS = 3
 _OPENMP_NAME = re.compile(r"^lib(gomp|omp|iomp5)([-.][^/]*)?\.so")
 
 
@@ -432,6 +434,19 @@ class XTBModel(EnergyModel):
             gradient = np.array(result.get("gradient"), dtype=float).reshape(-1, 3)
         return energy, gradient
 
+    def reset(self) -> None:
+        """Drop the stored wavefunction and calculator: the next SCF starts from the default guess.
+
+        Within one task (an optimisation, a Hessian) each SCF restarts from the previous
+        geometry's wavefunction; between tasks the restart must not carry over, or a
+        conformer's result would depend on which conformer the same worker computed
+        before it (the restarted SCF converges to within tblite's accuracy, not exactly,
+        and an optimisation that ends near its gradient threshold can flip from
+        converged to not converged).
+        """
+        self._calc = None
+        self._result = None
+
     def _check_coords(self, coords: np.ndarray) -> np.ndarray:
         x = np.asarray(coords, dtype=float)
         if x.shape != (self.numbers.size, 3):
@@ -550,8 +565,12 @@ class XTBModel(EnergyModel):
         bounds are used) and is checked again on the final geometry. The relative
         energy-change test of L-BFGS-B is switched off (``ftol`` = 0), so the
         minimiser stops at ``gtol``, at ``max_steps`` iterations, or when its line
-        search fails (SCF noise near a very tight ``gtol``); ``converged`` is False in
-        the last two cases unless the gradient test holds.
+        search fails (SCF noise near a very tight ``gtol``). After a stop with the gradient
+        still above ``gtol``, L-BFGS-B is restarted from the last geometry (up to
+        three times, within ``max_steps`` iterations in all); ``converged`` is False only
+        when the gradient test still fails then. The returned energy and gradient are the
+        minimiser's own last evaluation at the returned geometry, so the convergence test
+        and the result agree.
 
         Parameters
         ----------
@@ -579,32 +598,47 @@ class XTBModel(EnergyModel):
             raise OptionError(f"max_steps must be a positive integer, got {max_steps!r}")
         if not gtol > 0:
             raise OptionError(f"gtol must be > 0, got {gtol!r}")
-        x0 = self._check_coords(coords).ravel().copy()
-        e_ref = self.energy(x0.reshape(-1, 3))
+        x = self._check_coords(coords).ravel().copy()
+        e_ref = self.energy(x.reshape(-1, 3))
+        last: dict[str, Any] = {}
 
-        def fun(x: np.ndarray) -> tuple[float, np.ndarray]:
-            e, g = self.energy_and_gradient(x.reshape(-1, 3))
+        def fun(y: np.ndarray) -> tuple[float, np.ndarray]:
+            e, g = self.energy_and_gradient(y.reshape(-1, 3))
+            last.update(x=y.copy(), e=e, g=g)
             return e - e_ref, g.ravel()
 
-        res = minimize(
-            fun,
-            x0,
-            jac=True,
-            method="L-BFGS-B",
-            options={"maxiter": int(max_steps), "gtol": float(gtol), "ftol": 0.0},
-        )
-        final = np.asarray(res.x, dtype=float).reshape(-1, 3)
-        energy, gradient = self.energy_and_gradient(final)
-        max_g = float(np.max(np.abs(gradient)))
+        n_steps = n_evaluations = 0
+        message = ""
+        for _ in range(_OPTIMISE_RESTARTS + 1):
+            res = minimize(
+                fun,
+                x,
+                jac=True,
+                method="L-BFGS-B",
+                options={"maxiter": int(max_steps) - n_steps, "gtol": float(gtol), "ftol": 0.0},
+            )
+            n_steps += int(res.nit)
+            n_evaluations += int(res.nfev)
+            message = str(res.message)
+            x = np.asarray(res.x, dtype=float)
+            if "x" in last and np.array_equal(last["x"], x):
+                energy, gradient = last["e"], last["g"]  # the minimiser's own last evaluation
+            else:
+                energy, gradient = self.energy_and_gradient(x.reshape(-1, 3))
+                n_evaluations += 1
+            max_g = float(np.max(np.abs(gradient)))
+            # a line search that fails on SCF noise just above gtol: restart L-BFGS-B from here
+            if max_g <= gtol or n_steps >= max_steps or int(res.nit) == 0:
+                break
         return XTBOptimizationResult(
-            coords=final,
-            energy=energy,
+            coords=x.reshape(-1, 3),
+            energy=float(energy),
             rms_gradient=float(np.sqrt(np.mean(gradient**2))),
             max_gradient=max_g,
             converged=max_g <= gtol,
-            n_steps=int(res.nit),
-            n_evaluations=int(res.nfev) + 2,
-            message=str(res.message),
+            n_steps=n_steps,
+            n_evaluations=n_evaluations + 1,
+            message=message,
         )
 
     def atomic_charges(self, coords: np.ndarray) -> np.ndarray:

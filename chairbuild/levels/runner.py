@@ -107,6 +107,9 @@ def _optimize(model, coords: np.ndarray, max_steps: int = 500, gtol: float = 0.1
 
 
 def _run_task(model, kind: str, coords: np.ndarray):
+    # each task starts clean: its result must not depend on which task this model (or this
+    # forked worker) ran before, or results would change with the worker count and timing
+    model.reset()
     try:
         if kind == "optimize":
             return _optimize(model, coords)
