@@ -28,29 +28,37 @@ How a starting structure is made
    states get the full product over bonds; states with a twist-boat get the first value
    of each rotor only (they lie 20 kJ/mol or more above the chairs in most rings, and
    their rotamers cost many minimisations for little population). When the product
-   exceeds ``max_rotamers`` (default 81), the rotors nearest the rings are enumerated
+   exceeds ``max_rotamers`` (default 729 = 3^6), the rotors nearest the rings are enumerated
    fully and the farther ones start at their template value; a note says so, and after
-   the first minimisation every rotor is varied one at a time around the lowest minima
-   (:func:`rotamer_variations`, up to three rounds in :mod:`chairbuild.pipeline`) to
-   recover cooperative arrangements such as the hydrogen-bond chains of polyols.
+   the first minimisation every rotor (and every pair on consecutive bonds) is varied
+   around the lowest minima overall and the lowest members of every conformer family
+   (:func:`chairbuild.rotamers.rotamer_variations`, up to three rounds in :mod:`chairbuild.pipeline`) to
+   recover cooperative arrangements such as the hydrogen-bond chains of polyols. Below
+   the cap, each chair family's lowest member is among the starts by construction; above
+   it the refinement is a search, not a guarantee. Molecules beyond the size cap of
+   :mod:`chairbuild.limits` are refused unless the reduced search is asked for.
 6. **Duplicates** among the starting structures (the same structure reached by two
    routes, or its mirror image for an achiral molecule) are removed with a
-   symmetry-aware heavy-atom RMSD below 0.05 Å, so each is minimised once.
+   symmetry-aware RMSD below 0.05 Å over the heavy atoms and every hydrogen on N, O
+   and S (so that rotamers of NH2 and OH groups stay distinct), so each is minimised once.
 """
 
 from __future__ import annotations
 
 import itertools
+import math
 from dataclasses import dataclass
 from typing import Sequence
 
 import numpy as np
 from rdkit import Chem
-from rdkit.Chem import AllChem, rdMolTransforms
+from rdkit.Chem import AllChem
 from scipy.optimize import least_squares
 
 from chairbuild.errors import InputError
+from chairbuild.limits import count_rotamers, format_count
 from chairbuild.rings import RingAnalysis
+from chairbuild.rotamers import set_rotamer
 
 __all__ = [
     "RingState",
@@ -66,7 +74,7 @@ _TB_A = 31.0
 _TB_B = 65.0
 _INFEASIBLE_DEG = 40.0
 _HALF_TETRAHEDRAL = np.radians(54.75)
-DEFAULT_MAX_ROTAMERS = 81
+DEFAULT_MAX_ROTAMERS = 729
 _TEMPLATE_SEED = 20261202
 #: Starting guesses tried per ring-state combination before it is declared unreachable.
 _MAX_GUESSES = 4
@@ -633,10 +641,6 @@ def _system_states(mol, problem: "_CoreProblem", combos, template, ranks, progre
     return feasible, n_infeasible
 
 
-def _set_rotamer(conf: Chem.Conformer, rotor_atoms, angle: float) -> None:
-    rdMolTransforms.SetDihedralDeg(conf, *rotor_atoms, float(angle))
-
-
 def build_starting_structures(
     mol: Chem.Mol,
     analysis: RingAnalysis,
@@ -682,7 +686,7 @@ def build_starting_structures(
         combos_per_system[s.index] = combos
     notes: list[str] = []
     rotors = list(analysis.rotors)
-    n_combos_rot = int(np.prod([len(r.angles) for r in rotors])) if rotors else 1
+    n_combos_rot = count_rotamers(rotors)
     if n_combos_rot > max_rotamers:
         kept, total = [], 1
         for r in rotors:
@@ -690,16 +694,17 @@ def build_starting_structures(
                 kept.append(r)
                 total *= len(r.angles)
         notes.append(
-            f"rotamer cap reached: {n_combos_rot} combinations of {len(rotors)} rotatable bonds exceed "
+            f"rotamer cap reached: {format_count(n_combos_rot)} combinations of {len(rotors)} rotatable bonds exceed "
             f"max_rotamers={max_rotamers}; the {len(rotors) - len(kept)} rotor(s) farthest from the rings start at their "
-            "template torsion, and every rotor is then varied one at a time around the lowest minima"
+            "template torsion"
         )
         rotors = kept
+    # at most max_rotamers combinations after the cap above: this list is bounded
     rotamer_sets = list(itertools.product(*(r.angles for r in rotors))) if rotors else [()]
     # states with a twist-boat: each rotor at its first value only (see the module notes)
     boat_sets = [tuple(r.angles[0] for r in rotors)]
     assembler = _Assembler(mol, {k: p.atoms for k, p in problems.items()}, template)
-    dedupe = StructureDeduplicator(mol, None, achiral=achiral, rmsd_threshold=0.05)
+    dedupe = StructureDeduplicator(mol, None, achiral=achiral, rmsd_threshold=0.05, all_polar_hydrogens=True)
     starts: list[StartingStructure] = []
     n_infeasible = n_stereo = n_dup = 0
     infeasible_labels = []
@@ -738,7 +743,7 @@ def build_starting_structures(
                 for i, p in enumerate(xyz):
                     c.SetAtomPosition(i, p.tolist())
                 for rotor, value in zip(rotors, rot_values):
-                    _set_rotamer(c, rotor.atoms, value)
+                    set_rotamer(c, rotor.atoms, value)
                 final = c.GetPositions()
                 if dedupe.is_duplicate(final):
                     n_dup += 1
@@ -755,53 +760,9 @@ def build_starting_structures(
     return BuildReport(
         starts=tuple(starts),
         notes=tuple(notes),
-        n_ring_combinations=int(np.prod([len(combos_per_system[s]) for s in system_ids])),
+        n_ring_combinations=math.prod(len(combos_per_system[s]) for s in system_ids),
         n_infeasible=n_infeasible,
         n_stereo_rejected=n_stereo,
         n_duplicates=n_dup,
         capped=n_combos_rot > max_rotamers,
     )
-
-
-def rotamer_variations(
-    mol: Chem.Mol, analysis: RingAnalysis, seeds: Sequence[np.ndarray], origin: str = "refine"
-) -> list[StartingStructure]:
-    """New starts from minimised ``seeds``: each rotor, and each pair of rotors on consecutive bonds,
-    set to each of its other values.
-
-    Used after the rotamer cap bit: a hill-climbing pass over rotor settings around the
-    lowest minima finds the cooperative arrangements (hydrogen-bond chains of polyols)
-    that the capped product left out.
-    """
-    work = Chem.Mol(mol)
-    work.RemoveAllConformers()
-    work.AddConformer(Chem.Conformer(mol.GetNumAtoms()), assignId=True)
-    conf = work.GetConformer()
-    rotors = list(analysis.rotors)
-    # single rotors, and pairs of rotors on consecutive bonds of one branch (C-C-O-H of CH2OH), which
-    # often have to turn together
-    moves: list[tuple[int, ...]] = [(r,) for r in range(len(rotors))]
-    for a in range(len(rotors)):
-        for b in range(len(rotors)):
-            if a != b and rotors[a].atoms[2] == rotors[b].atoms[1] and rotors[a].atoms[1] != rotors[b].atoms[2]:
-                moves.append((a, b))
-    out = []
-    for k, xyz in enumerate(seeds):
-        _set_positions(conf, xyz)
-        current = [rdMolTransforms.GetDihedralDeg(conf, *r.atoms) for r in rotors]
-        for move in moves:
-            for values in itertools.product(*(rotors[r].angles for r in move)):
-                if any(abs(((v - current[r] + 180.0) % 360.0) - 180.0) < 40.0 for r, v in zip(move, values)):
-                    continue  # a rotor already sits there: covered by a smaller move
-                _set_positions(conf, xyz)
-                for r, v in zip(move, values):
-                    _set_rotamer(conf, rotors[r].atoms, v)
-                label = ",".join(f"rotor{r}={v:.0f}" for r, v in zip(move, values))
-                out.append(StartingStructure(coords=conf.GetPositions(), origin=f"{origin}:seed{k}:{label}"))
-    return out
-
-
-def _set_positions(conf: Chem.Conformer, xyz: np.ndarray) -> Chem.Conformer:
-    for i, p in enumerate(xyz):
-        conf.SetAtomPosition(i, p.tolist())
-    return conf

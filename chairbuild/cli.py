@@ -86,7 +86,13 @@ def _add_analysis_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--free-energy", action="store_true", help="rank and weight by the qRRHO free energy G instead of E")
     p.add_argument("--no-twist-boats", action="store_true", help="build chairs only")
     p.add_argument(
-        "--max-rotamers", type=_positive_int, default=81, help="cap on rotamer combinations per ring state (default 81)"
+        "--max-rotamers", type=_positive_int, default=729, help="cap on rotamer combinations per ring state (default 729)"
+    )
+    p.add_argument(
+        "--reduced-search",
+        action="store_true",
+        help="search a molecule beyond the size cap (over 100 heavy atoms or 30 rotatable bonds) with only the "
+        "rotors nearest the rings enumerated, instead of refusing it",
     )
     p.add_argument("--threads", type=_positive_int, default=None, help="CPU threads for the energy engines")
     p.add_argument("--quiet", action="store_true", help="no progress bars and no 'wrote FILE' lines (errors still print)")
@@ -173,6 +179,7 @@ def _analysis_kwargs(args: argparse.Namespace) -> dict:
         "free_energy": args.free_energy,
         "twist_boats": not args.no_twist_boats,
         "max_rotamers": args.max_rotamers,
+        "reduced_search": args.reduced_search,
         "threads": args.threads,
         "progress": not args.quiet and sys.stderr.isatty(),
     }

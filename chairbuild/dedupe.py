@@ -50,7 +50,7 @@ def _n_hydrogens(atom: Chem.Atom) -> int:
     return sum(1 for n in atom.GetNeighbors() if n.GetAtomicNum() == 1) + atom.GetNumImplicitHs()
 
 
-def _selected_atoms(mol: Chem.Mol, atoms: list[int] | None) -> list[int]:
+def _selected_atoms(mol: Chem.Mol, atoms: list[int] | None, all_polar_hydrogens: bool = False) -> list[int]:
     if atoms is not None:
         return [int(a) for a in atoms]
     out = []
@@ -59,8 +59,9 @@ def _selected_atoms(mol: Chem.Mol, atoms: list[int] | None) -> list[int]:
             out.append(a.GetIdx())
         else:
             parent = a.GetNeighbors()[0] if a.GetDegree() else None
-            if parent is not None and parent.GetAtomicNum() in (7, 8, 16) and _n_hydrogens(parent) == 1:
-                out.append(a.GetIdx())
+            if parent is not None and parent.GetAtomicNum() in (7, 8, 16):
+                if all_polar_hydrogens or _n_hydrogens(parent) == 1:
+                    out.append(a.GetIdx())
     return out
 
 
@@ -72,11 +73,14 @@ def _automorphisms(mol: Chem.Mol, selected: list[int]) -> np.ndarray:
     if not matches:
         matches = (tuple(range(heavy_mol.GetNumAtoms())),)
     pos = {a: k for k, a in enumerate(selected)}
-    polar_parent = {}
+    # compared hydrogens by parent, in index order: the k-th hydrogen of a parent maps onto the
+    # k-th hydrogen of the parent's image (an NH2 pair is not swapped; structures that differ only
+    # by that swap count as different, which costs a minimisation but never loses one)
+    polar_hydrogens: dict[int, list[int]] = {}
     for a in selected:
         atom = mol.GetAtomWithIdx(a)
         if atom.GetAtomicNum() == 1:
-            polar_parent[atom.GetNeighbors()[0].GetIdx()] = a
+            polar_hydrogens.setdefault(atom.GetNeighbors()[0].GetIdx(), []).append(a)
     perms = []
     for match in matches:
         # heavy atom heavy[i] maps onto heavy[match[i]]
@@ -88,11 +92,11 @@ def _automorphisms(mol: Chem.Mol, selected: list[int]) -> np.ndarray:
                 perm.append(pos[image[a]])
             else:
                 parent = mol.GetAtomWithIdx(a).GetNeighbors()[0].GetIdx()
-                target = polar_parent.get(image[parent])
-                if target is None:
+                own, theirs = polar_hydrogens[parent], polar_hydrogens.get(image[parent], [])
+                if len(theirs) != len(own):
                     ok = False
                     break
-                perm.append(pos[target])
+                perm.append(pos[theirs[own.index(a)]])
         if ok:
             perms.append(perm)
     unique = np.unique(np.array(perms, dtype=int), axis=0)
@@ -108,6 +112,9 @@ class StructureDeduplicator:
         Molecule with explicit hydrogens (hydrogens after heavy atoms).
     atoms : list of int, optional
         Atoms compared (default: heavy atoms and lone polar hydrogens).
+    all_polar_hydrogens : bool
+        With the default atoms, compare every hydrogen on N, O and S, not only a lone one
+        (used for starting structures, where an NH2 turned by a rotor is a different start).
     achiral : bool
         Allow reflections (the molecule is superposable on its mirror image).
     rmsd_threshold : float
@@ -123,8 +130,9 @@ class StructureDeduplicator:
         achiral: bool = False,
         rmsd_threshold: float = 0.25,
         energy_tolerance: float | None = None,
+        all_polar_hydrogens: bool = False,
     ):
-        self.atoms = np.array(_selected_atoms(mol, atoms), dtype=int)
+        self.atoms = np.array(_selected_atoms(mol, atoms, all_polar_hydrogens), dtype=int)
         self.perms = _automorphisms(mol, [int(a) for a in self.atoms])
         self.achiral = achiral
         self.threshold = rmsd_threshold

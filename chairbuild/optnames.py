@@ -30,6 +30,7 @@ CLI_FLAGS: dict[str, str] = {
     "solvation_model": "--solvation",
     "free_energy": "--free-energy",
     "max_rotamers": "--max-rotamers",
+    "reduced_search": "--reduced-search",
     "twist_boats": "--no-twist-boats",
     "threads": "--threads",
     "progress": "--quiet",

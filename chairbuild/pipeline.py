@@ -66,6 +66,10 @@ class AnalysisOptions:
         Boltzmann weighting.
     max_rotamers : int
         Cap on rotamer combinations per ring-state combination (see :mod:`chairbuild.build`).
+    reduced_search : bool
+        Search a molecule beyond the size cap (:mod:`chairbuild.limits`: more than 100 heavy
+        atoms or 30 rotatable bonds) with only the rotors nearest the rings enumerated and no
+        rotor refinement, with a note, instead of refusing it with an InputError.
     twist_boats : bool
         Build the twist-boat states too.
     threads : int or None
@@ -82,7 +86,8 @@ class AnalysisOptions:
     free_energy: bool = False
     temperature: float = T_DEFAULT
     window: float = DEFAULT_WINDOW_KJ
-    max_rotamers: int = 81
+    max_rotamers: int = 729
+    reduced_search: bool = False
     twist_boats: bool = True
     threads: int | None = None
     progress: bool = False
@@ -252,18 +257,21 @@ def _run_one(prepared, opts: AnalysisOptions):
     from chairbuild.minimise import deduplicate, minimise_starts
     from chairbuild.input import charge_and_multiplicity
     from chairbuild.levels.apply import run_chain
+    from chairbuild.limits import REDUCED_MAX_ROTAMERS, check_search_size
     from chairbuild.rings import analyse_rings
 
     timings: dict[str, float] = {}
     t0 = time.perf_counter()
     mol = prepared.mol
     analysis = analyse_rings(mol)
+    size_notes = check_search_size(mol.GetNumHeavyAtoms(), analysis.rotors, opts.reduced_search)
+    prepared = replace(prepared, notes=prepared.notes + size_notes)
     report = build_starting_structures(
         mol,
         analysis,
         prepared.smiles,
         prepared.achiral,
-        max_rotamers=opts.max_rotamers,
+        max_rotamers=min(opts.max_rotamers, REDUCED_MAX_ROTAMERS) if size_notes else opts.max_rotamers,
         include_twist_boats=opts.twist_boats,
         progress=opts.progress,
     )
@@ -273,7 +281,7 @@ def _run_one(prepared, opts: AnalysisOptions):
         mol, report.starts, prepared.smiles, variant=opts.forcefield, threads=opts.threads, progress=opts.progress
     )
     distinct = deduplicate(mol, minimised, prepared.achiral)
-    if report.capped:
+    if report.capped and not size_notes:  # the reduced search skips the rotor refinement
         extra, n_extra = _refine_rotamers(mol, analysis, prepared, distinct, opts)
         minimised += extra
         n_min += n_extra
@@ -322,24 +330,62 @@ def _run_one(prepared, opts: AnalysisOptions):
     return replace(ensemble, provenance=provenance)
 
 
-#: Rotamer refinement after the cap bit: seeds per round, rounds, and the energy range of seeds (kJ/mol).
+#: Rotamer refinement after the cap bit: seeds per round overall and per conformer family, rounds, and the
+#: energy range of seeds above the lowest (overall, or of their own family) in kJ/mol.
 REFINE_SEEDS = 6
+REFINE_SEEDS_PER_FAMILY = 2
 REFINE_ROUNDS = 3
 REFINE_RANGE_KJ = 15.0
 
 
 def _refine_rotamers(mol, analysis, prepared, distinct, opts):
-    """Vary rotors one at a time around the lowest minima until no new low minimum appears."""
-    from chairbuild.build import rotamer_variations
+    """Vary rotors around the lowest minima overall and of every conformer family until none gains a new low minimum.
+
+    Seeds of a round: the ``REFINE_SEEDS`` lowest minima within ``REFINE_RANGE_KJ`` of the
+    lowest overall, plus, for every family (ring shapes and axial substituents, as in
+    :func:`chairbuild.families.family_keys`) whose lowest member lies within the energy
+    window, its ``REFINE_SEEDS_PER_FAMILY`` lowest members within ``REFINE_RANGE_KJ`` of that
+    member. Seeding each family finds its lowest member even when another family holds all
+    the low minima overall (an intramolecular hydrogen bond in one chair, say), so the
+    ratio of the chair families does not depend on which family the capped product
+    happened to favour. Rounds stop when no family's set of low minima changes.
+    """
+    from chairbuild.rotamers import rotamer_variations
+    from chairbuild.describe import describe_conformer
+    from chairbuild.families import family_keys
     from chairbuild.minimise import deduplicate, minimise_starts
+
+    n_rings = len(analysis.rings)
+    families: dict[int, tuple[str, ...]] = {}
+
+    def family(s) -> tuple[str, ...]:
+        if id(s) not in families:
+            families[id(s)] = family_keys(n_rings, *describe_conformer(mol, analysis, s.coords))
+        return families[id(s)]
+
+    def low_sets(structures) -> dict[tuple[str, ...], set[float]]:
+        out: dict[tuple[str, ...], list] = {}
+        for s in sorted(structures, key=lambda m: m.energy):
+            out.setdefault(family(s), []).append(s)
+        return {k: {round(m.energy, 3) for m in v if m.energy - v[0].energy <= REFINE_RANGE_KJ} for k, v in out.items()}
 
     extra = []
     n_min = 0
     tried: set[float] = set()
-    current = list(distinct)
+    current = sorted(distinct, key=lambda m: m.energy)
     for round_k in range(REFINE_ROUNDS):
-        e0 = min(s.energy for s in current)
-        seeds = [s for s in current if s.energy - e0 <= REFINE_RANGE_KJ and round(s.energy, 4) not in tried][:REFINE_SEEDS]
+        e0 = current[0].energy
+        fresh = [s for s in current if round(s.energy, 4) not in tried]
+        seeds = [s for s in fresh if s.energy - e0 <= REFINE_RANGE_KJ][:REFINE_SEEDS]
+        by_family: dict[tuple[str, ...], list] = {}
+        for s in current:
+            by_family.setdefault(family(s), []).append(s)
+        for members in by_family.values():
+            low = members[0].energy
+            if low - e0 > opts.window:
+                continue
+            picked = [s for s in members if s.energy - low <= REFINE_RANGE_KJ and round(s.energy, 4) not in tried]
+            seeds += [s for s in picked[:REFINE_SEEDS_PER_FAMILY] if not any(s is t for t in seeds)]
         if not seeds:
             break
         tried.update(round(s.energy, 4) for s in seeds)
@@ -347,11 +393,10 @@ def _refine_rotamers(mol, analysis, prepared, distinct, opts):
         new, n = minimise_starts(mol, starts, prepared.smiles, variant=opts.forcefield, threads=opts.threads, progress=opts.progress)
         extra += new
         n_min += n
-        merged = deduplicate(mol, list(current) + new, prepared.achiral)
-        before = {round(s.energy, 3) for s in current if s.energy - e0 <= REFINE_RANGE_KJ}
-        after = {round(s.energy, 3) for s in merged if s.energy - min(m.energy for m in merged) <= REFINE_RANGE_KJ}
-        current = merged
-        if after <= before:
+        before = low_sets(current)
+        current = sorted(deduplicate(mol, list(current) + new, prepared.achiral), key=lambda m: m.energy)
+        after = low_sets(current)
+        if all(after.get(k, set()) <= before.get(k, set()) for k in after):
             break
     return extra, n_min
 
@@ -442,6 +487,7 @@ def _assemble_result(prepared, analysis, ranked, rejected, opts, outcome, build_
             "temperature_K": opts.temperature,
             "window_kJ": opts.window,
             "max_rotamers": opts.max_rotamers,
+            "reduced_search": opts.reduced_search,
             "twist_boats": opts.twist_boats,
             "threads": opts.threads,
             "stages": [st.spec() for st in opts.chain.stages],

@@ -36,6 +36,11 @@ COMPLETENESS_SET = (
     ("cyclohexanone, 2-methyl", "C[C@@H]1CCCCC1=O"),
     ("cis-decalin", "C1CC[C@H]2CCCC[C@H]2C1"),
     ("trans-decalin", "C1CC[C@@H]2CCCC[C@H]2C1"),
+    # flexible substituents in both chair families: the lowest member of each family must be found
+    # (the first once came out 6.8 kJ/mol too high in its diequatorial family)
+    ("trans-4-(2-amino-3,5-dibromobenzylamino)cyclohexanol", "Nc1c(Br)cc(Br)cc1CN[C@H]1CC[C@H](O)CC1"),
+    ("cis-4-(2-hydroxyethoxy)-N-methylcyclohexanemethanamine", "CNC[C@H]1CC[C@@H](OCCO)CC1"),
+    ("trans-2-(2-methoxyethyl)cyclohexylmethanol", "OC[C@@H]1CCCC[C@H]1CCOC"),
 )
 
 
