@@ -240,8 +240,9 @@ def test_additive_breakdown_shows_specific_increments_sources_fallbacks_and_unkn
 
     piperidine = analyze("c1ccc(cc1)C1CCNCC1", name="4-phenylpiperidine", threads=1)  # PIP-N1-H row; C6H5 falls back
     aminol = analyze("N[C@@H]1CCCC[C@@H]1O", name="cis-2-aminocyclohexanol", threads=1)  # NH2/OH gauche pair unknown
+    texts = {}
     for ens in (piperidine, aminol):
-        text = report_html(ens)
+        text = texts[ens.name] = report_html(ens)
         section = text[text.index("Ring-state families"):text.index("Vicinal couplings")]
         terms = [t for f in ens.families for t in f.additive_terms]
         assert terms
@@ -263,6 +264,6 @@ def test_additive_breakdown_shows_specific_increments_sources_fallbacks_and_unkn
     # the specific piperidine N-H row is used (no fallback), the phenyl one falls back to cyclohexane's
     keys = {t.increment: t for f in piperidine.families for t in f.additive_terms}
     assert keys["PIP-N1-H"].fallback == "" and keys["C6H5"].fallback
-    aminol_text = report_html(aminol)
+    aminol_text = texts[aminol.name]
     unknown = [f for f in aminol.families if f.additive_status is AdditiveStatus.UNKNOWN]
     assert unknown and aminol_text.count("<b>increment unknown</b>") == len(unknown)
