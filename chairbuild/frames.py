@@ -181,8 +181,11 @@ def families_frame(ens: Ensemble, unit: EnergyUnit | str = EnergyUnit.KJ):
 
     Energies in ``unit``: ``delta_g`` (G of the family minus G of the ring's most
     populated family, ≥ 0), ``additive_energy`` and ``model_energy`` (relative to the
-    family with the lowest additive estimate; NaN where there is none), ``K`` =
-    P(most populated)/P(family) = exp(ΔG/RT) ≥ 1.
+    ring's reference family, the chair family with the lowest complete additive estimate;
+    NaN where there is none), ``additive_uncertainty`` (sum of the quoted ranges of the
+    terms), ``K`` = P(most populated)/P(family) = exp(ΔG/RT) ≥ 1. ``additive_status``
+    says what the additive column holds (:class:`~chairbuild.result.AdditiveStatus`:
+    ``estimated``, ``reference``, ``increment unknown``, ``no increments known``, ``none``).
     """
     import numpy as np
     import pandas as pd
@@ -203,6 +206,8 @@ def families_frame(ens: Ensemble, unit: EnergyUnit | str = EnergyUnit.KJ):
             "K": f.equilibrium_constant,
             f"additive_energy_{u}": energy(f.additive_energy),
             f"model_energy_{u}": energy(f.model_energy),
+            f"additive_uncertainty_{u}": energy(f.additive_uncertainty),
+            "additive_status": f.additive_status.value,
             "disagreement": bool(f.disagreement),
             "additive_partial": bool(f.additive_notes),
             "n_members": len(f.members),
@@ -211,7 +216,7 @@ def families_frame(ens: Ensemble, unit: EnergyUnit | str = EnergyUnit.KJ):
         for f in ens.families
     ]
     frame = pd.DataFrame.from_records(rows, columns=None if rows else ["key"])
-    for col in ("label", "members"):
+    for col in ("label", "members", "additive_status"):
         if col in frame.columns:
             frame[col] = frame[col].astype("string")
     return frame.set_index("key")

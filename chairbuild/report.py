@@ -58,7 +58,7 @@ th{background:#e2e8f0}td.num{text-align:right;font-variant-numeric:tabular-nums}
 .legend{font-size:.85em;max-width:360px}.legend div{margin:3px 0}
 pre{background:white;border:1px solid #cbd5e1;padding:8px;overflow-x:auto;font-size:.8em}
 img.plot{max-width:100%%;border:1px solid #e2e8f0;background:white;margin:4px 0}
-ul.terms{margin:0;padding-left:1.1em}
+ul.terms{margin:0;padding-left:1.1em}li.unknown{color:#b91c1c}ol.sources{font-size:.8em;margin:.2em 0 1em}
 nav a{margin-right:12px}
 """ % {"h": _VIEWER_HEIGHT}
 
@@ -161,11 +161,6 @@ def _chip(text: str, colour: str) -> str:
     return f'<span class="chip" style="background:{_e(colour)};color:{font}">{_e(text)}</span>'
 
 
-def _family_label(family) -> tuple[str, str]:
-    """(label, note on a partial additive estimate or '')."""
-    return family.label, "; ".join(family.additive_notes)
-
-
 def _num(value: float | None, fmt: str = ".2f") -> str:
     if value is None or not np.isfinite(value):
         return '<td class="num">–</td>'
@@ -189,7 +184,7 @@ def _summary_rows(ensembles: Sequence[Ensemble]) -> str:
             fams = [f for f in ens.families if f.ring_index == r]
             if fams:
                 f = max(fams, key=lambda f: f.population)
-                top.append(f"ring {r}: {_e(_family_label(f)[0])} ({100 * f.population:.1f} %)")
+                top.append(f"ring {r}: {_e(f.label)} ({100 * f.population:.1f} %)")
         rows.append(
             f'<tr><td><a href="#cb-ens-{i}">{_e(ens.name)}</a></td><td><code>{_e(ens.smiles)}</code></td>'
             f'<td class="num">{len(ens.conformers)}</td>'
@@ -230,6 +225,85 @@ def _conformer_table(ens: Ensemble) -> str:
     )
 
 
+def _additive_cell(f) -> str:
+    """The additive column: a number, or why there is none (terminal table's wording)."""
+    from chairbuild.result import AdditiveStatus
+
+    if f.additive_energy is not None:
+        return _num(f.additive_energy)
+    text = {AdditiveStatus.UNKNOWN: "unknown", AdditiveStatus.NO_INCREMENTS: "none"}.get(f.additive_status, "–")
+    return f'<td class="num">{_e(text)}</td>'
+
+
+def _flag_html(f) -> str:
+    """The check column: the flag with the threshold it crossed (2.0 kJ/mol plus the estimate's uncertainty)."""
+    from chairbuild.families import DISAGREEMENT_KJ
+
+    if not (f.disagreement and f.model_energy is not None and f.additive_energy is not None):
+        return ""
+    diff = f.model_energy - f.additive_energy
+    return (
+        f'<span class="flag">disagrees</span> force field − additive = {diff:+.1f} kJ/mol '
+        f"(threshold {DISAGREEMENT_KJ:.1f} + uncertainty {f.additive_uncertainty or 0.0:.1f})"
+    )
+
+
+def _breakdown_html(f, sources: dict[str, int]) -> str:
+    """One family's increments: value, what each scores, [n] source, conditions, fallback; what is missing.
+
+    ``sources`` numbers each distinct (increment, source, conditions) of the ring in order of
+    first use; :func:`_sources_html` lists them under the table.
+    """
+    from chairbuild.result import AdditiveStatus
+
+    status = f.additive_status
+    if status is AdditiveStatus.NONE:
+        return "<small>no additive estimate (not a chair family)</small>"
+    items = []
+    for t in f.additive_terms:
+        ref = f"{t.increment}: {t.source}" + (f"; {t.conditions}" if t.conditions else "")
+        n = sources.setdefault(ref, len(sources) + 1)
+        spread = f" ± {t.uncertainty:.2f}" if t.uncertainty else ""
+        where = t.applies_to or t.kind
+        back = f'<br><small class="fallback">generic fallback: {_e(t.fallback)}</small>' if t.fallback else ""
+        items.append(
+            f"<li>{t.value:+.2f}{spread} kJ/mol {_e(t.kind)}: {_e(where)} "
+            f"<small>(atoms {_e('–'.join(map(str, t.atoms)))})</small> "
+            f'<a href="#{_e(_source_anchor(f.key, n))}">[{n}]</a>{back}</li>'
+        )
+    if status is AdditiveStatus.REFERENCE and not items:
+        items.append("<li>no increment: the reference family (0 by definition)</li>")
+    elif status is AdditiveStatus.ESTIMATED and not items:
+        items.append("<li>no increment (no axial substituent or pair that the table scores)</li>")
+    elif status is AdditiveStatus.REFERENCE:
+        items.append("<li><small>the reference family: its increments are the zero of the ring's additive scale</small></li>")
+    missing = "".join(f"<li class=\"unknown\">{_e(n.split(': ', 1)[-1])}</li>" for n in f.additive_notes)
+    shown = [t.fallback for t in f.additive_terms if t.fallback]
+    caveats = "".join(
+        f"<li><small>approximate: {_e(c.split(': ', 1)[-1])}</small></li>"
+        for c in f.additive_caveats if not any(fb in c for fb in shown)
+    )
+    head = ""
+    if status in (AdditiveStatus.UNKNOWN, AdditiveStatus.NO_INCREMENTS):
+        head = f"<b>{_e(status.value)}</b>: no number is compared with the force field"
+    return f'{head}<ul class="terms">{"".join(items)}{missing}{caveats}</ul>'
+
+
+def _source_anchor(family_key: str, n: int) -> str:
+    ring = family_key.split(":", 1)[0]
+    return f"cb-src-{_slug(ring)}-{n}"
+
+
+def _sources_html(ring_key: str, sources: dict[str, int]) -> str:
+    """The numbered sources (increment key: citation with its P/S/M flag; conditions) under a ring's table."""
+    if not sources:
+        return ""
+    rows = "".join(
+        f'<li id="{_e(_source_anchor(ring_key, n))}" value="{n}">{_e(ref)}</li>' for ref, n in sources.items()
+    )
+    return f'<p><small>Sources of the increments (key: citation [flag P/S/M]; conditions):</small></p><ol class="sources">{rows}</ol>'
+
+
 def _family_tables(ens: Ensemble) -> str:
     from chairbuild.families import DISAGREEMENT_KJ
 
@@ -239,37 +313,21 @@ def _family_tables(ens: Ensemble) -> str:
         if not fams:
             continue
         rows = []
+        sources: dict[str, int] = {}
         for f in fams:
-            terms = "".join(
-                f"<li>{_e(t.kind)} (atoms {_e('–'.join(map(str, t.atoms)))}): {t.value:+.2f} kJ/mol "
-                f"<small>[{_e(t.source)}]</small></li>"
-                for t in f.additive_terms
-            )
-            if f.additive_energy is None:
-                breakdown = "<small>no additive estimate (not a chair family)</small>"
-            else:
-                breakdown = f'<ul class="terms">{terms or "<li>no increment (reference family)</li>"}</ul>'
-            flag = ""
-            if f.disagreement and f.model_energy is not None and f.additive_energy is not None:
-                diff = f.model_energy - f.additive_energy
-                flag = (
-                    f'<span class="flag">disagrees</span> force field − additive = {diff:+.1f} kJ/mol '
-                    f"(threshold {DISAGREEMENT_KJ:g})"
-                )
+            breakdown = _breakdown_html(f, sources)
             kval = f.equilibrium_constant
             kcell = _num(kval) if np.isfinite(kval) and kval < 1e6 else '<td class="num">&gt;1e6</td>'
-            name, partial = _family_label(f)
-            if partial:
-                breakdown += f"<small>additive estimate partial: {_e(partial)}</small>"
             rows.append(
-                f"<tr><td>{_e(name)}</td>{_num(100 * f.population)}{_num(f.delta_g)}"
+                f"<tr><td>{_e(f.label)}</td>{_num(100 * f.population)}{_num(f.delta_g)}"
                 f"{kcell}"
-                f"{_num(f.additive_energy)}{_num(f.model_energy)}<td>{flag}</td><td>{breakdown}</td></tr>"
+                f"{_additive_cell(f)}{_num(f.model_energy)}<td>{_flag_html(f)}</td><td>{breakdown}</td></tr>"
             )
         out.append(
             f"<h3>Ring {r} (atoms {_e('–'.join(map(str, ring)))}): families</h3>"
             "<table><tr><th>family</th><th>pop. %</th><th>ΔG (kJ/mol)</th><th>K</th><th>additive (kJ/mol)</th>"
             "<th>force field (kJ/mol)</th><th>check</th><th>additive breakdown</th></tr>" + "".join(rows) + "</table>"
+            + _sources_html(f"ring{r}", sources)
         )
     if out:
         from chairbuild.output import FAMILY_CONVENTION
@@ -277,9 +335,14 @@ def _family_tables(ens: Ensemble) -> str:
         out.append(
             f"<p><small>Sign convention: {_e(FAMILY_CONVENTION)}. "
             "Additive and force-field values are relative to the ring's chair family with the "
-            f"lowest additive estimate. A family is flagged when they differ by more than {DISAGREEMENT_KJ:g} kJ/mol: "
-            "then the increments (A-values, gauche and syn-diaxial terms) do not describe this ring well, and the "
-            "explicit ensemble is the better of the two estimates, but still a model estimate.</small></p>"
+            "lowest complete additive estimate (the reference). Each increment is the most specific one the table "
+            "has for the ring type and position; a cyclohexane value standing in for a missing one is marked "
+            "as a generic fallback. A family whose estimate lacks a term says <i>increment unknown</i>, and one "
+            "whose ring has no increment at all says <i>no increments known</i>; neither gets a number or a flag. "
+            f"A family is flagged when the two values differ by more than {DISAGREEMENT_KJ:g} kJ/mol plus the "
+            "estimate's uncertainty (the sum of the quoted ranges of its terms and the reference's): then the "
+            "increments do not describe this ring well, and the explicit ensemble is the better of the two "
+            "estimates, but still a model estimate.</small></p>"
         )
     return "".join(out)
 

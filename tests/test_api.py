@@ -69,6 +69,10 @@ def test_to_dataframe_has_one_typed_row_per_conformer(ens):
     assert (df["multiplicity"] == 1).all() and (df["name"] == ens.name).all()
     fam = ens.families_dataframe()
     assert len(fam) == len(ens.families) and fam.index.name == "key"
+    for f in ens.families:  # what the additive column holds, and the estimate's uncertainty, per family
+        assert fam.loc[f.key, "additive_status"] == f.additive_status.value
+        want = np.nan if f.additive_uncertainty is None else f.additive_uncertainty
+        assert fam.loc[f.key, "additive_uncertainty_kJ_mol"] == pytest.approx(want, nan_ok=True)
     assert fam["population"].sum() == pytest.approx(1.0, abs=1e-6)
     best = fam["delta_g_kJ_mol"].idxmin()
     assert fam.loc[best, "K"] == pytest.approx(1.0)

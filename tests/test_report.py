@@ -228,3 +228,42 @@ def test_report_grows_with_conformers_by_their_coordinates_only(fake_asset):
     # per conformer: 3 coordinates of 10 characters per atom would be the SDF text itself;
     # the packed coordinates, the property block, the table rows and the packed scene stay below it
     assert high < 30 * len(ens.symbols) + 3000
+
+
+def test_additive_breakdown_shows_specific_increments_sources_fallbacks_and_unknowns(fake_asset):
+    """The family table's breakdown: every term with its increment key, numbered source and conditions,
+    generic fallbacks named, families lacking a term say so instead of a number (internal consistency,
+    common practice, no source)."""
+    from chairbuild.families import DISAGREEMENT_KJ
+    from chairbuild.pipeline import analyze
+    from chairbuild.result import AdditiveStatus
+
+    piperidine = analyze("c1ccc(cc1)C1CCNCC1", name="4-phenylpiperidine", threads=1)  # PIP-N1-H row; C6H5 falls back
+    aminol = analyze("N[C@@H]1CCCC[C@@H]1O", name="cis-2-aminocyclohexanol", threads=1)  # NH2/OH gauche pair unknown
+    texts = {}
+    for ens in (piperidine, aminol):
+        text = texts[ens.name] = report_html(ens)
+        section = text[text.index("Ring-state families"):text.index("Vicinal couplings")]
+        terms = [t for f in ens.families for t in f.additive_terms]
+        assert terms
+        refs = {f"{t.increment}: {t.source}" + (f"; {t.conditions}" if t.conditions else "") for t in terms}
+        for ref in refs:
+            assert html.escape(ref) in section  # listed once under the table, numbered
+        for t in terms:
+            assert html.escape(t.applies_to) in section
+        assert section.count('<ol class="sources">') == 1 and section.count('<li id="cb-src-ring0-') == len(refs)
+        fallbacks = [t for t in terms if t.fallback]
+        assert section.count("generic fallback: ") == len(fallbacks)
+        for f in ens.families:
+            if f.additive_status in (AdditiveStatus.UNKNOWN, AdditiveStatus.NO_INCREMENTS):
+                assert not f.disagreement
+                for note in f.additive_notes:
+                    assert html.escape(note.split(": ", 1)[-1]) in section
+            if f.disagreement:
+                assert f"(threshold {DISAGREEMENT_KJ:.1f} + uncertainty {f.additive_uncertainty:.1f})" in section
+    # the specific piperidine N-H row is used (no fallback), the phenyl one falls back to cyclohexane's
+    keys = {t.increment: t for f in piperidine.families for t in f.additive_terms}
+    assert keys["PIP-N1-H"].fallback == "" and keys["C6H5"].fallback
+    aminol_text = texts[aminol.name]
+    unknown = [f for f in aminol.families if f.additive_status is AdditiveStatus.UNKNOWN]
+    assert unknown and aminol_text.count("<b>increment unknown</b>") == len(unknown)
