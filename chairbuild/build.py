@@ -5,8 +5,11 @@ How a starting structure is made
 1. **Ring states.** Each six-membered ring takes one of eight states: the two chairs
    (endocyclic torsions ±55° alternating) and the six twist-boats (torsions
    (a, −b, a, a, −b, a) with a = 31°, b = 65°, in its three rotations and two signs).
-   In a ring system of several rings, all chair combinations are built, plus each
-   combination in which exactly one ring is a twist-boat and the others are chairs.
+   In a molecule of several rings, all chair combinations are built, plus each
+   combination in which exactly one ring is a twist-boat and the others are chairs
+   (within a ring system and across separate ring systems alike: each twist-boat costs
+   about 20–25 kJ/mol in a cyclohexane-like ring, so states with two lie beyond the
+   default energy window).
 2. **Ideal ring-system core.** For each combination the ring-system atoms are placed by a
    small least-squares fit to ideal geometry only (bond lengths from covalent radii,
    angles 111° at sp3 and 120° at sp2 atoms, the target torsions; a double bond in a
@@ -18,7 +21,9 @@ How a starting structure is made
    one free direction. Every distinct assignment of the exocyclic neighbours to those
    directions is built (heavy substituent up or down; on an invertible ring nitrogen
    the substituent or hydrogen both ways). Assignments whose 3D stereochemistry
-   differs from the input's are discarded before any minimisation.
+   differs from the input's are discarded before any minimisation, and so are
+   assignments whose assembled structure is equivalent by symmetry (or, for an achiral
+   molecule, by reflection) to one already kept, before their rotamers are built.
 4. **The rest of the molecule** is copied rigidly, branch by branch, from one ETKDG
    template embedding (fixed seed), keeping the template's torsion about each
    attachment bond; separate ring systems are attached as their own ideal cores.
@@ -27,16 +32,20 @@ How a starting structure is made
    :func:`chairbuild.rings._staggered_angles` for bonds with sp2 ends). All-chair
    states get the full product over bonds; states with a twist-boat get the first value
    of each rotor only (they lie 20 kJ/mol or more above the chairs in most rings, and
-   their rotamers cost many minimisations for little population). When the product
-   exceeds ``max_rotamers`` (default 729 = 3^6), the rotors nearest the rings are enumerated
-   fully and the farther ones start at their template value; a note says so, and after
-   the first minimisation every rotor (and every pair on consecutive bonds) is varied
-   around the lowest minima overall and the lowest members of every conformer family
-   (:func:`chairbuild.rotamers.rotamer_variations`, up to three rounds in :mod:`chairbuild.pipeline`) to
-   recover cooperative arrangements such as the hydrogen-bond chains of polyols. Below
-   the cap, each chair family's lowest member is among the starts by construction; above
-   it the refinement is a search, not a guarantee. Molecules beyond the size cap of
-   :mod:`chairbuild.limits` are refused unless the reduced search is asked for.
+   their rotamers cost many minimisations for little population). The cap on the
+   product per all-chair combination is automatic (:func:`rotamer_cap`): 729 (3^6) for
+   a single ring's two chairs, less for ring systems with many ring-state and
+   N-inversion combinations (a budget of about 1458 all-chair starts, but never below
+   81), or ``max_rotamers`` when given. Above the cap, the rotors nearest the rings are
+   enumerated fully and the farther ones start at their template value; a note says so,
+   and after the first minimisation every rotor (and every pair on consecutive bonds) is
+   varied around the lowest minima overall and the lowest members of every ring's
+   conformer families (:func:`chairbuild.rotamers.rotamer_variations`, up to three rounds
+   in :mod:`chairbuild.pipeline`) to recover cooperative arrangements such as the
+   hydrogen-bond chains of polyols. Below the cap, each chair family's lowest member is
+   among the starts by construction; above it the refinement is a search, not a
+   guarantee. Molecules beyond the size cap of :mod:`chairbuild.limits` are refused
+   unless the reduced search is asked for.
 6. **Duplicates** among the starting structures (the same structure reached by two
    routes, or its mirror image for an achiral molecule) are removed with a
    symmetry-aware RMSD below 0.05 Å over the heavy atoms and every hydrogen on N, O
@@ -46,7 +55,6 @@ How a starting structure is made
 from __future__ import annotations
 
 import itertools
-import math
 from dataclasses import dataclass
 from typing import Sequence
 
@@ -74,7 +82,10 @@ _TB_A = 31.0
 _TB_B = 65.0
 _INFEASIBLE_DEG = 40.0
 _HALF_TETRAHEDRAL = np.radians(54.75)
-DEFAULT_MAX_ROTAMERS = 729
+#: Budget of all-chair starting structures from which the automatic rotamer cap is derived.
+ROTAMER_BUDGET = 1458
+#: Bounds of the automatic rotamer cap per all-chair core (3^4 and 3^6 combinations).
+MIN_ROTAMER_CAP, MAX_ROTAMER_CAP = 81, 729
 _TEMPLATE_SEED = 20261202
 #: Starting guesses tried per ring-state combination before it is declared unreachable.
 _MAX_GUESSES = 4
@@ -127,6 +138,10 @@ class BuildReport:
     n_stereo_rejected: int
     n_duplicates: int
     capped: bool = False
+    #: Ring-state and placement cores skipped before their rotamers were built (equivalent by symmetry to an earlier one).
+    n_duplicate_cores: int = 0
+    #: Rotamer combinations allowed per all-chair core in this build (see :func:`rotamer_cap`).
+    rotamer_cap: int = 0
 
 
 
@@ -390,8 +405,20 @@ def _exo_directions(core_xyz: dict[int, np.ndarray], atom: int, ring_nbs: list[i
     ]
 
 
-def _placements(mol: Chem.Mol, core_xyz: dict[int, np.ndarray], system_atoms: set[int], ranks: list[int]):
-    """Per ring-system atom, the list of distinct {exo atom: position} assignments."""
+def _placements(
+    mol: Chem.Mol,
+    core_xyz: dict[int, np.ndarray],
+    system_atoms: set[int],
+    ranks: list[int],
+    equatorial_only: dict[int, np.ndarray] | None = None,
+):
+    """Per ring-system atom, the list of distinct {exo atom: position} assignments.
+
+    ``equatorial_only`` maps atoms (invertible nitrogens) to the normal of their ring's mean
+    plane: such an atom gets only the assignment whose exocyclic bond lies closest to that
+    plane (equatorial in a chair).
+    """
+    equatorial_only = equatorial_only or {}
     options = []
     for atom in sorted(system_atoms):
         a = mol.GetAtomWithIdx(atom)
@@ -413,6 +440,13 @@ def _placements(mol: Chem.Mol, core_xyz: dict[int, np.ndarray], system_atoms: se
             choices.append(
                 {e: core_xyz[atom] + dirs[p] * _bond_length(mol, atom, e) for e, p in zip(exo, perm)}
             )
+        if atom in equatorial_only and len(choices) > 1:
+            normal = equatorial_only[atom]
+
+            def tilt(choice: dict[int, np.ndarray]) -> float:
+                return max(abs(float(np.dot(pos - core_xyz[atom], normal))) for pos in choice.values())
+
+            choices = [min(choices, key=tilt)]
         options.append(choices)
     return options
 
@@ -565,6 +599,30 @@ def _template(mol: Chem.Mol) -> np.ndarray:
     return xyz
 
 
+def rotamer_cap(n_chair_cores: int) -> int:
+    """Automatic rotamer cap per all-chair core: ``ROTAMER_BUDGET / n_chair_cores`` within [81, 729].
+
+    A single ring with its two chairs gets 729 (3^6) combinations per chair, the full product
+    of six sp3 rotors; a ring system with many ring-state and N-inversion combinations gets
+    fewer per combination, down to 81, so that the number of starts stays near the budget.
+    """
+    return int(min(MAX_ROTAMER_CAP, max(MIN_ROTAMER_CAP, ROTAMER_BUDGET // max(n_chair_cores, 1))))
+
+
+def _with_rotamers(conf_mol: Chem.Mol, xyz: np.ndarray, rotors, values) -> np.ndarray:
+    """Coordinates ``xyz`` with each rotor's torsion set to its value (on ``conf_mol``'s one conformer)."""
+    c = conf_mol.GetConformer()
+    for i, p in enumerate(xyz):
+        c.SetAtomPosition(i, p.tolist())
+    for rotor, value in zip(rotors, values):
+        set_rotamer(c, rotor.atoms, value)
+    return c.GetPositions()
+
+
+def _n_twist_boats(states: Sequence[RingState] | None) -> int:
+    return 0 if states is None else sum(st.kind != "chair" for st in states)
+
+
 def _ring_combinations(n_rings: int) -> list[tuple[RingState, ...]]:
     chairs = RING_STATES[:2]
     boats = RING_STATES[2:]
@@ -606,9 +664,17 @@ def _core_guesses(problem: _CoreProblem, states: Sequence[RingState], template: 
     return guesses
 
 
-def _core_options(mol, core_xyz: dict[int, np.ndarray], atoms: list[int], ranks) -> list[dict[int, np.ndarray]]:
+def _ring_normal(xyz: np.ndarray) -> np.ndarray:
+    """Unit normal of the mean plane of a ring's atoms."""
+    centred = xyz - xyz.mean(axis=0)
+    return np.linalg.svd(centred)[2][-1]
+
+
+def _core_options(
+    mol, core_xyz: dict[int, np.ndarray], atoms: list[int], ranks, equatorial_only: dict[int, np.ndarray] | None = None
+) -> list[dict[int, np.ndarray]]:
     """Every distinct core (system atoms plus exocyclic neighbours) for one ring-system geometry."""
-    options = _placements(mol, core_xyz, set(atoms), ranks)
+    options = _placements(mol, core_xyz, set(atoms), ranks, equatorial_only)
     cores = []
     for choice in itertools.product(*options):
         full = dict(core_xyz)
@@ -618,8 +684,15 @@ def _core_options(mol, core_xyz: dict[int, np.ndarray], atoms: list[int], ranks)
     return cores
 
 
-def _system_states(mol, problem: "_CoreProblem", combos, template, ranks, progress: bool = False):
-    """Feasible (label, states, cores) of one ring system, and the number of infeasible combinations.
+def _system_states(mol, problem: "_CoreProblem", combos, template, ranks, invertible=(), progress: bool = False):
+    """Feasible (states, cores, restricted cores) of one ring system, and the number of infeasible combinations.
+
+    ``cores`` holds every placement; ``restricted cores`` those with each invertible
+    nitrogen (in ``invertible``) of a chair ring equatorial only: they stand in for this
+    system in combinations where some ring of the molecule is a twist-boat, since a
+    twist-boat family is one family whatever the nitrogens of the chairs do. In a state
+    with a twist-boat, the nitrogens of the twist-boat ring keep both placements and those
+    of its chair rings are equatorial only.
 
     When no combination of chair and twist-boat states fits (a bridged system such as
     bicyclo[2.2.2]octane, whose rings are boats), the system is built once from the
@@ -627,17 +700,29 @@ def _system_states(mol, problem: "_CoreProblem", combos, template, ranks, progre
     """
     from tqdm import tqdm
 
+    inv = set(invertible) & set(problem.atoms)
     feasible = []
     for states in tqdm(combos, desc="ring states", unit="state", disable=not progress or len(combos) < 10, leave=False):
         coords = problem.solve(states, _core_guesses(problem, states, template))
         if coords is None:
             continue
         core_xyz = {a: coords[problem.local[a]] for a in problem.atoms}
-        feasible.append((states, _core_options(mol, core_xyz, problem.atoms, ranks)))
+        equatorial = {}
+        for ring, state in zip(problem.rings, states):
+            if state.kind == "chair":
+                normal = _ring_normal(np.array([core_xyz[a] for a in ring.atoms]))
+                equatorial.update({a: normal for a in ring.atoms if a in inv})
+        restricted = _core_options(mol, core_xyz, problem.atoms, ranks, equatorial) if equatorial else None
+        if _n_twist_boats(states):
+            feasible.append((states, restricted or _core_options(mol, core_xyz, problem.atoms, ranks), None))
+            continue
+        cores = _core_options(mol, core_xyz, problem.atoms, ranks)
+        feasible.append((states, cores, restricted or cores))
     n_infeasible = len(combos) - len(feasible)
     if not feasible:
         core_xyz = {a: template[a] - template[problem.atoms].mean(axis=0) for a in problem.atoms}
-        feasible.append((None, _core_options(mol, core_xyz, problem.atoms, ranks)))
+        cores = _core_options(mol, core_xyz, problem.atoms, ranks)
+        feasible.append((None, cores, cores))
     return feasible, n_infeasible
 
 
@@ -646,7 +731,7 @@ def build_starting_structures(
     analysis: RingAnalysis,
     reference_signature: str,
     achiral: bool,
-    max_rotamers: int = DEFAULT_MAX_ROTAMERS,
+    max_rotamers: int | None = None,
     include_twist_boats: bool = True,
     progress: bool = False,
 ) -> BuildReport:
@@ -661,8 +746,9 @@ def build_starting_structures(
         Canonical isomeric SMILES the built structures must reproduce.
     achiral : bool
         Whether mirror-image structures count as duplicates.
-    max_rotamers : int
-        Cap on rotamer combinations per ring-state combination.
+    max_rotamers : int or None
+        Cap on rotamer combinations per all-chair ring-state and placement combination;
+        None (default) chooses it from the number of those combinations (:func:`rotamer_cap`).
     include_twist_boats : bool
         Build twist-boat states too (default True).
     progress : bool
@@ -685,28 +771,10 @@ def build_starting_structures(
             combos = [c for c in combos if all(st.kind == "chair" for st in c)]
         combos_per_system[s.index] = combos
     notes: list[str] = []
-    rotors = list(analysis.rotors)
-    n_combos_rot = count_rotamers(rotors)
-    if n_combos_rot > max_rotamers:
-        kept, total = [], 1
-        for r in rotors:
-            if total * len(r.angles) <= max_rotamers:
-                kept.append(r)
-                total *= len(r.angles)
-        notes.append(
-            f"rotamer cap reached: {format_count(n_combos_rot)} combinations of {len(rotors)} rotatable bonds exceed "
-            f"max_rotamers={max_rotamers}; the {len(rotors) - len(kept)} rotor(s) farthest from the rings start at their "
-            "template torsion"
-        )
-        rotors = kept
-    # at most max_rotamers combinations after the cap above: this list is bounded
-    rotamer_sets = list(itertools.product(*(r.angles for r in rotors))) if rotors else [()]
-    # states with a twist-boat: each rotor at its first value only (see the module notes)
-    boat_sets = [tuple(r.angles[0] for r in rotors)]
     assembler = _Assembler(mol, {k: p.atoms for k, p in problems.items()}, template)
     dedupe = StructureDeduplicator(mol, None, achiral=achiral, rmsd_threshold=0.05, all_polar_hydrogens=True)
     starts: list[StartingStructure] = []
-    n_infeasible = n_stereo = n_dup = 0
+    n_infeasible = n_stereo = n_dup = n_dup_cores = 0
     infeasible_labels = []
     system_ids = [s.index for s in analysis.systems]
     conf_mol = Chem.Mol(mol)
@@ -715,7 +783,9 @@ def build_starting_structures(
     conf_mol.AddConformer(conf, assignId=True)
     per_system = {}
     for s in system_ids:
-        per_system[s], n_bad = _system_states(mol, problems[s], combos_per_system[s], template, ranks, progress)
+        per_system[s], n_bad = _system_states(
+            mol, problems[s], combos_per_system[s], template, ranks, analysis.invertible_nitrogens, progress
+        )
         n_infeasible += n_bad
         if per_system[s][0][0] is None:
             notes.append(
@@ -724,34 +794,73 @@ def build_starting_structures(
             )
         elif n_bad:
             infeasible_labels.append(n_bad)
+    core_dedupe = StructureDeduplicator(mol, None, achiral=achiral, rmsd_threshold=0.05, all_polar_hydrogens=True)
+    n_combos = 0
+    cores: list[tuple[np.ndarray, str, bool]] = []  # (coordinates, label, all rings chairs)
     for combo in itertools.product(*(per_system[s] for s in system_ids)):
+        n_boats = sum(_n_twist_boats(states) for states, _, _ in combo)
+        if n_boats > 1:
+            continue  # at most one twist-boat ring in the whole molecule (see the module notes)
+        n_combos += 1
         parts = []
-        for s, (states, _) in zip(system_ids, combo):
+        for s, (states, _, _) in zip(system_ids, combo):
             if states is None:
                 parts.append(f"system{s}=embedded")
             else:
                 parts += [f"ring{analysis.systems[s].rings[k]}={st.label}" for k, st in enumerate(states)]
         label = ";".join(parts)
-        all_chairs = all(states is None or all(st.kind == "chair" for st in states) for states, _ in combo)
-        for choice_idx, core_choice in enumerate(itertools.product(*(cores for _, cores in combo))):
+        all_chairs = n_boats == 0
+        # with a twist-boat somewhere, the other systems' invertible nitrogens stay equatorial (see _system_states)
+        system_cores = [cores if all_chairs or restricted is None else restricted for _, cores, restricted in combo]
+        for choice_idx, core_choice in enumerate(itertools.product(*system_cores)):
             xyz = assembler.assemble(dict(zip(system_ids, core_choice)))
             if stereo_signature(mol, xyz) != reference_signature:
                 n_stereo += 1
                 continue
-            for rot_values in rotamer_sets if all_chairs else boat_sets:
-                c = conf_mol.GetConformer()
-                for i, p in enumerate(xyz):
-                    c.SetAtomPosition(i, p.tolist())
-                for rotor, value in zip(rotors, rot_values):
-                    set_rotamer(c, rotor.atoms, value)
-                final = c.GetPositions()
-                if dedupe.is_duplicate(final):
-                    n_dup += 1
-                    continue
-                rot_label = ",".join(f"{v:.0f}" for v in rot_values)
-                origin = f"{label}|placement{choice_idx}" + (f"|rot({rot_label})" if rot_values else "")
-                dedupe.add(final)
-                starts.append(StartingStructure(coords=final, origin=origin))
+            # a core equivalent by symmetry to one already kept would only repeat its rotamers; compared with
+            # every rotor at its first value, since two cores can differ only in what the rotors then move
+            canonical = _with_rotamers(conf_mol, xyz, analysis.rotors, [r.angles[0] for r in analysis.rotors])
+            if core_dedupe.is_duplicate(canonical):
+                n_dup_cores += 1
+                continue
+            core_dedupe.add(canonical)
+            cores.append((xyz, f"{label}|placement{choice_idx}", all_chairs))
+    n_chair_cores = sum(1 for _, _, all_chairs in cores if all_chairs)
+    cap = rotamer_cap(n_chair_cores) if max_rotamers is None else int(max_rotamers)
+    rotors = list(analysis.rotors)
+    n_combos_rot = count_rotamers(rotors)
+    if n_combos_rot > cap:
+        kept, total = [], 1
+        for r in rotors:
+            if total * len(r.angles) <= cap:
+                kept.append(r)
+                total *= len(r.angles)
+        notes.append(
+            f"rotamer cap reached: {format_count(n_combos_rot)} combinations of {len(rotors)} rotatable bonds exceed "
+            f"the cap of {cap} per ring state ({n_chair_cores} all-chair ring-state and placement combinations); the "
+            f"{len(rotors) - len(kept)} rotor(s) farthest from the rings start at their template torsion"
+        )
+        rotors = kept
+    # at most `cap` combinations after the cap above: this list is bounded
+    rotamer_sets = list(itertools.product(*(r.angles for r in rotors))) if rotors else [()]
+    # states with a twist-boat: each rotor at its first value only (see the module notes)
+    boat_sets = [tuple(r.angles[0] for r in rotors)]
+    for xyz, label, all_chairs in cores:
+        sets = rotamer_sets if all_chairs else boat_sets
+        for k, rot_values in enumerate(sets):
+            final = _with_rotamers(conf_mol, xyz, rotors, rot_values)
+            if dedupe.is_duplicate(final):
+                if k == 0:
+                    # the core is equivalent to one expanded before, its rotor references turned by a
+                    # multiple of the rotamer step: its rotamers repeat that core's rotamers
+                    n_dup_cores += 1
+                    n_dup += len(sets)
+                    break
+                n_dup += 1
+                continue
+            rot_label = ",".join(f"{v:.0f}" for v in rot_values)
+            dedupe.add(final)
+            starts.append(StartingStructure(coords=final, origin=label + (f"|rot({rot_label})" if rot_values else "")))
     if infeasible_labels:
         notes.append(
             f"{sum(infeasible_labels)} ring-state combination(s) cannot be built (the ring fusion, a bridge or an "
@@ -760,9 +869,11 @@ def build_starting_structures(
     return BuildReport(
         starts=tuple(starts),
         notes=tuple(notes),
-        n_ring_combinations=math.prod(len(combos_per_system[s]) for s in system_ids),
+        n_ring_combinations=n_combos,
         n_infeasible=n_infeasible,
         n_stereo_rejected=n_stereo,
         n_duplicates=n_dup,
-        capped=n_combos_rot > max_rotamers,
+        capped=n_combos_rot > cap,
+        n_duplicate_cores=n_dup_cores,
+        rotamer_cap=cap,
     )

@@ -86,7 +86,11 @@ def _add_analysis_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--free-energy", action="store_true", help="rank and weight by the qRRHO free energy G instead of E")
     p.add_argument("--no-twist-boats", action="store_true", help="build chairs only")
     p.add_argument(
-        "--max-rotamers", type=_positive_int, default=729, help="cap on rotamer combinations per ring state (default 729)"
+        "--max-rotamers",
+        type=_positive_int,
+        default=None,
+        help="cap on rotamer combinations per all-chair ring state (default: automatic, 729 for one ring down to 81 "
+        "for ring systems with many ring-state and N-inversion combinations)",
     )
     p.add_argument(
         "--reduced-search",

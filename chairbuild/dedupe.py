@@ -8,7 +8,8 @@ same energy level, so reflections are allowed too, and a conformer that is not
 superposable on its own mirror image stands for two (degeneracy 2).
 
 A cheap invariant, the sorted list of interatomic distances (unchanged by permutation,
-rotation and reflection), screens candidates before any alignment.
+rotation and reflection), screens candidates before any alignment, with two bounds that
+an RMSD below the threshold implies (largest single difference and Euclidean norm).
 """
 
 from __future__ import annotations
@@ -138,10 +139,12 @@ class StructureDeduplicator:
         self.threshold = rmsd_threshold
         self.energy_tolerance = energy_tolerance
         self._coords: list[np.ndarray] = []
-        self._spectra: list[np.ndarray] = []
         self._energies: list[float] = []
         iu = np.triu_indices(len(self.atoms), k=1)
         self._iu = iu
+        # spectra of the kept structures, rows [0, count) of a buffer grown by doubling
+        self._spectra = np.empty((16, len(iu[0])))
+        self._count = 0
 
     def _spectrum(self, xyz: np.ndarray) -> np.ndarray:
         d = np.linalg.norm(xyz[:, None, :] - xyz[None, :, :], axis=-1)
@@ -153,10 +156,16 @@ class StructureDeduplicator:
         if not self._coords:
             return None
         spec = self._spectrum(xyz)
-        # a permutation cannot change the spectrum; RMSD r bounds each distance change by 2r·sqrt(n)
-        bound = 2.0 * self.threshold * np.sqrt(len(self.atoms)) + 1e-6
-        spectra = np.array(self._spectra)
-        candidates = np.flatnonzero(np.max(np.abs(spectra - spec), axis=1) <= bound)
+        # A permutation, rotation or reflection cannot change the sorted spectrum. With atom
+        # displacements δ_i after the best fit (Σ δ_i² = n r²), a distance changes by at most
+        # |δ_i| + |δ_j|, so the matched distances differ by at most 2 r sqrt(n) each and by at most
+        # sqrt(2 n (n - 1)) r in the Euclidean norm over all pairs; sorting both lists can only
+        # shorten that norm (rearrangement inequality). Both bounds screen before any alignment.
+        n = len(self.atoms)
+        bound_max = 2.0 * self.threshold * np.sqrt(n) + 1e-6
+        bound_l2 = self.threshold * np.sqrt(2.0 * n * (n - 1)) + 1e-6
+        diff = np.abs(self._spectra[: self._count] - spec)
+        candidates = np.flatnonzero((diff.max(axis=1) <= bound_max) & (np.sqrt((diff**2).sum(axis=1)) <= bound_l2))
         for k in candidates:
             if self.energy_tolerance is not None and energy is not None:
                 if abs(self._energies[k] - energy) > self.energy_tolerance:
@@ -173,7 +182,10 @@ class StructureDeduplicator:
         """Keep ``coords``; return its index."""
         xyz = np.asarray(coords, dtype=float)[self.atoms]
         self._coords.append(xyz)
-        self._spectra.append(self._spectrum(xyz))
+        if self._count == len(self._spectra):
+            self._spectra = np.concatenate([self._spectra, np.empty_like(self._spectra)])
+        self._spectra[self._count] = self._spectrum(xyz)
+        self._count += 1
         self._energies.append(float(energy) if energy is not None else float("nan"))
         return len(self._coords) - 1
 

@@ -1,12 +1,12 @@
 """How large a systematic search may get: rotamer counts and the size cap.
 
-The systematic search builds every ring state and every rotamer combination up to
-``max_rotamers`` per ring-state combination, then varies each rotor around the lowest
-minima (:func:`chairbuild.rotamers.rotamer_variations`). Both grow with the molecule: the
-rotamer product as 3^n for n sp3–sp3 rotors (3^40 already exceeds a 64-bit integer), the
-refinement as the square of the number of rotors. Counts are therefore kept in Python
-integers, and molecules beyond the size cap are refused before any work unless the caller
-asks for the reduced search.
+The systematic search builds every ring state and every rotamer combination up to a cap
+per all-chair ring-state combination (:func:`chairbuild.build.rotamer_cap`), then varies
+each rotor around the lowest minima (:func:`chairbuild.rotamers.rotamer_variations`). Both
+grow with the molecule: the rotamer product as 3^n for n sp3–sp3 rotors (3^40 already
+exceeds a 64-bit integer), the refinement as the square of the number of rotors. Counts are
+therefore kept in Python integers, and molecules beyond the size cap are refused before any
+work unless the caller asks for the reduced search.
 
 Size cap
 --------
@@ -18,18 +18,19 @@ more than :data:`MAX_ROTORS` rotatable bonds outside its analysed rings (the rot
 Reduced search
 --------------
 With ``reduced_search`` the rotors nearest the rings are enumerated up to
-``min(max_rotamers, REDUCED_MAX_ROTAMERS)`` combinations (27: the three sp3 rotors nearest
-the rings), every other rotor keeps the torsion of the template embedding, and the
-refinement pass that varies rotors around the lowest minima is skipped. A note on the
-result says how many rotors were left at their template torsion.
+``REDUCED_MAX_ROTAMERS`` combinations (27: the three sp3 rotors nearest the rings; fewer
+when ``max_rotamers`` is smaller), every other rotor keeps the torsion of the template
+embedding, and the refinement pass that varies rotors around the lowest minima is skipped.
+A note on the result says so.
 
 Memory bound
 ------------
-The build holds at most ``C x P x max_rotamers`` starting structures, where C is the number
-of feasible ring-state combinations and P the number of substituent placements per
-combination, each ``3 x n_atoms`` floats; the rotamer product itself is never built beyond
-``max_rotamers`` combinations. ``tests/benchmarks/bench_size_cap.py`` prints the peak
-resident memory of a 152-heavy-atom case under the reduced search.
+The build holds one starting structure (``3 x n_atoms`` floats) per all-chair core and
+rotamer combination plus one per twist-boat core: with the automatic cap about
+``max(1458, 81 x K)`` structures for K all-chair cores (ring-state, placement and
+N-inversion combinations), with ``max_rotamers = M`` at most ``K x M``; the rotamer product
+itself is never built beyond the cap. ``tests/benchmarks/bench_size_cap.py`` prints the
+peak resident memory of a 152-heavy-atom case under the reduced search.
 """
 
 from __future__ import annotations

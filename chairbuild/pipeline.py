@@ -23,6 +23,10 @@ __all__ = ["AnalysisOptions", "analyze", "analyze_all", "DEFAULT_WINDOW_KJ"]
 
 #: Default energy window (kJ/mol): keeps cyclohexane's twist-boat (about 23 kJ/mol above the chair).
 DEFAULT_WINDOW_KJ = 30.0
+#: Starts whose energy after the screening pass of the minimisation lies more than the build
+#: window plus this margin (kJ/mol) above the lowest are not minimised further
+#: (:func:`chairbuild.minimise.minimise_starts`).
+SCREEN_MARGIN_KJ = 20.0
 #: Default DFT level of dft stages, chosen by measurement (README, "Chains of levels and DFT").
 DEFAULT_DFT_FUNCTIONAL = "b3lyp"
 DEFAULT_DFT_BASIS = "def2-svp"
@@ -64,8 +68,10 @@ class AnalysisOptions:
     window : float
         Keep conformers within this energy (kJ/mol) of the lowest; applied before the
         Boltzmann weighting.
-    max_rotamers : int
-        Cap on rotamer combinations per ring-state combination (see :mod:`chairbuild.build`).
+    max_rotamers : int or None
+        Cap on rotamer combinations per all-chair ring-state combination; None (default)
+        chooses 81–729 from the number of those combinations
+        (:func:`chairbuild.build.rotamer_cap`).
     reduced_search : bool
         Search a molecule beyond the size cap (:mod:`chairbuild.limits`: more than 100 heavy
         atoms or 30 rotatable bonds) with only the rotors nearest the rings enumerated and no
@@ -86,7 +92,7 @@ class AnalysisOptions:
     free_energy: bool = False
     temperature: float = T_DEFAULT
     window: float = DEFAULT_WINDOW_KJ
-    max_rotamers: int = 729
+    max_rotamers: int | None = None
     reduced_search: bool = False
     twist_boats: bool = True
     threads: int | None = None
@@ -115,7 +121,7 @@ class AnalysisOptions:
             raise OptionError(f"temperature must be a positive number of kelvin, got {self.temperature}")
         if not (np.isfinite(self.window) and self.window > 0):
             raise OptionError(f"window must be a positive energy, got {self.window}")
-        if self.max_rotamers < 1:
+        if self.max_rotamers is not None and self.max_rotamers < 1:
             raise OptionError(f"max_rotamers must be at least 1, got {self.max_rotamers}")
         if self.threads is not None and self.threads < 1:
             raise OptionError(f"threads must be at least 1, got {self.threads}")
@@ -271,18 +277,26 @@ def _run_one(prepared, opts: AnalysisOptions):
         analysis,
         prepared.smiles,
         prepared.achiral,
-        max_rotamers=min(opts.max_rotamers, REDUCED_MAX_ROTAMERS) if size_notes else opts.max_rotamers,
+        max_rotamers=min(opts.max_rotamers or REDUCED_MAX_ROTAMERS, REDUCED_MAX_ROTAMERS) if size_notes else opts.max_rotamers,
         include_twist_boats=opts.twist_boats,
         progress=opts.progress,
     )
     timings["build_s"] = time.perf_counter() - t0
     t1 = time.perf_counter()
+    build_window = opts.chain.windows(opts.window)[0]
+    screen = (opts.window if build_window is None else build_window) + SCREEN_MARGIN_KJ
     minimised, n_min = minimise_starts(
-        mol, report.starts, prepared.smiles, variant=opts.forcefield, threads=opts.threads, progress=opts.progress
+        mol,
+        report.starts,
+        prepared.smiles,
+        variant=opts.forcefield,
+        threads=opts.threads,
+        progress=opts.progress,
+        screen_above=screen,
     )
     distinct = deduplicate(mol, minimised, prepared.achiral)
     if report.capped and not size_notes:  # the reduced search skips the rotor refinement
-        extra, n_extra = _refine_rotamers(mol, analysis, prepared, distinct, opts)
+        extra, n_extra = _refine_rotamers(mol, analysis, prepared, distinct, opts, screen)
         minimised += extra
         n_min += n_extra
         distinct = deduplicate(mol, minimised, prepared.achiral)
@@ -316,8 +330,11 @@ def _run_one(prepared, opts: AnalysisOptions):
         "infeasible_combinations": report.n_infeasible,
         "placements_rejected_by_stereo": report.n_stereo_rejected,
         "duplicate_starts": report.n_duplicates,
+        "duplicate_cores": report.n_duplicate_cores,
+        "rotamer_cap": report.rotamer_cap,
         "starting_structures": len(report.starts),
         "minimisations": n_min,
+        "screened_out": n_min - len(minimised),
         "distinct_minima": len(distinct),
         "gfn2_optimisations": n_xtb,
         "rejected": len(rejected),
@@ -338,14 +355,18 @@ REFINE_ROUNDS = 3
 REFINE_RANGE_KJ = 15.0
 
 
-def _refine_rotamers(mol, analysis, prepared, distinct, opts):
+def _refine_rotamers(mol, analysis, prepared, distinct, opts, screen: float):
     """Vary rotors around the lowest minima overall and of every conformer family until none gains a new low minimum.
 
     Seeds of a round: the ``REFINE_SEEDS`` lowest minima within ``REFINE_RANGE_KJ`` of the
-    lowest overall, plus, for every family (ring shapes and axial substituents, as in
-    :func:`chairbuild.families.family_keys`) whose lowest member lies within the energy
-    window, its ``REFINE_SEEDS_PER_FAMILY`` lowest members within ``REFINE_RANGE_KJ`` of that
-    member. Seeding each family finds its lowest member even when another family holds all
+    lowest overall, plus, for every ring's every chair family (its axial substituents, as
+    in :func:`chairbuild.families.family_keys`, the families whose populations are
+    reported) whose lowest member lies within the energy window, its two lowest members not
+    yet used as seeds (``REFINE_SEEDS_PER_FAMILY``). Seeds are counted per ring family, not
+    per combination of families, so their number grows with the rings, not with the
+    product of their states; twist-boat families, 20 kJ/mol or more above the chairs, are
+    refined only through the seeds overall. After the first round a family is seeded again
+    only if it gained a new low minimum in the round before. Seeding each family finds its lowest member even when another family holds all
     the low minima overall (an intramolecular hydrogen bond in one chair, say), so the
     ratio of the chair families does not depend on which family the capped product
     happened to favour. Rounds stop when no family's set of low minima changes.
@@ -359,30 +380,37 @@ def _refine_rotamers(mol, analysis, prepared, distinct, opts):
     families: dict[int, tuple[str, ...]] = {}
 
     def family(s) -> tuple[str, ...]:
+        """Family key of each ring (ring shape and axial substituents) of structure ``s``."""
         if id(s) not in families:
             families[id(s)] = family_keys(n_rings, *describe_conformer(mol, analysis, s.coords))
         return families[id(s)]
 
-    def low_sets(structures) -> dict[tuple[str, ...], set[float]]:
-        out: dict[tuple[str, ...], list] = {}
+    def groups(structures) -> dict[str, list]:
+        """Structures by ring family key (each structure in one group per ring), lowest first."""
+        out: dict[str, list] = {}
         for s in sorted(structures, key=lambda m: m.energy):
-            out.setdefault(family(s), []).append(s)
-        return {k: {round(m.energy, 3) for m in v if m.energy - v[0].energy <= REFINE_RANGE_KJ} for k, v in out.items()}
+            for key in family(s):
+                out.setdefault(key, []).append(s)
+        return out
+
+    def low_sets(structures) -> dict[str, set[float]]:
+        return {
+            k: {round(m.energy, 3) for m in v if m.energy - v[0].energy <= REFINE_RANGE_KJ}
+            for k, v in groups(structures).items()
+        }
 
     extra = []
     n_min = 0
     tried: set[float] = set()
     current = sorted(distinct, key=lambda m: m.energy)
+    changed: set[str] | None = None  # families that gained a low minimum in the last round (None: all)
     for round_k in range(REFINE_ROUNDS):
         e0 = current[0].energy
         fresh = [s for s in current if round(s.energy, 4) not in tried]
         seeds = [s for s in fresh if s.energy - e0 <= REFINE_RANGE_KJ][:REFINE_SEEDS]
-        by_family: dict[tuple[str, ...], list] = {}
-        for s in current:
-            by_family.setdefault(family(s), []).append(s)
-        for members in by_family.values():
+        for key, members in groups(current).items():
             low = members[0].energy
-            if low - e0 > opts.window:
+            if low - e0 > opts.window or ":chair[" not in key or (changed is not None and key not in changed):
                 continue
             picked = [s for s in members if s.energy - low <= REFINE_RANGE_KJ and round(s.energy, 4) not in tried]
             seeds += [s for s in picked[:REFINE_SEEDS_PER_FAMILY] if not any(s is t for t in seeds)]
@@ -390,13 +418,23 @@ def _refine_rotamers(mol, analysis, prepared, distinct, opts):
             break
         tried.update(round(s.energy, 4) for s in seeds)
         starts = rotamer_variations(mol, analysis, [s.coords for s in seeds], origin=f"refine{round_k + 1}")
-        new, n = minimise_starts(mol, starts, prepared.smiles, variant=opts.forcefield, threads=opts.threads, progress=opts.progress)
+        new, n = minimise_starts(
+            mol,
+            starts,
+            prepared.smiles,
+            variant=opts.forcefield,
+            threads=opts.threads,
+            progress=opts.progress,
+            screen_above=screen,
+            reference_energy=e0,
+        )
         extra += new
         n_min += n
         before = low_sets(current)
         current = sorted(deduplicate(mol, list(current) + new, prepared.achiral), key=lambda m: m.energy)
         after = low_sets(current)
-        if all(after.get(k, set()) <= before.get(k, set()) for k in after):
+        changed = {k for k in after if not after[k] <= before.get(k, set())}
+        if not changed:
             break
     return extra, n_min
 
