@@ -102,7 +102,7 @@ _LADDER = ("level shift 0.3 Eh", "damping 0.5, DIIS from cycle 8", "second-order
 def _solvent_db() -> dict[str, list[float]]:
     from pyscf.solvent import smd
 
-    return {k.lower(): v for k, v in smd.solvent_db.items()}
+    return {k.lower(): v for k, v in smd.solvent_db.items() if k.strip()}
 
 
 def available_dft_solvents(include_aliases: bool = False) -> list[str]:
@@ -314,8 +314,20 @@ class DFTModel(EnergyModel):
         mol.spin = self.multiplicity - 1
         mol.verbose = 0
         mol.max_memory = self.max_memory_mb
+        import warnings
+
+        from pyscf.lib.exceptions import BasisNotFoundError
+
         try:
-            mol.build()
+            with warnings.catch_warnings():  # PySCF's hint to install another package, for an unknown basis
+                warnings.simplefilter("ignore", UserWarning)
+                mol.build()
+        except BasisNotFoundError as exc:
+            detail = " ".join(str(exc).split())
+            raise OptionError(
+                f"basis {self.settings.basis!r} unknown to PySCF for the elements {', '.join(sorted(set(self.symbols)))} "
+                f"({detail})"
+            ) from None
         except RuntimeError as exc:
             raise InputError(f"{self.label}: {exc}") from None
         except (KeyError, ValueError, OSError) as exc:

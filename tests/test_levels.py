@@ -73,7 +73,7 @@ def test_radical_needs_an_open_shell_ranking_level():
 
 
 def test_stages_and_shorthands_do_not_mix():
-    with pytest.raises(OptionError, match="stages replace method, rerank and free_energy"):
+    with pytest.raises(OptionError, match="stages and the shorthands method, rerank, free_energy do not mix"):
         analyze("CC1CCCCC1", stages=["gfn2:single-point"], free_energy=True)
     with pytest.raises(OptionError, match="valid names: .*water"):
         analyze("CC1CCCCC1", stages=["gfn2:optimise", "dft:single-point,solvent=unobtainium"])
