@@ -1,0 +1,69 @@
+"""Accuracy guard of the default DFT level against experiment (slow: ``make test-all`` only).
+
+Check set: ``tests/data/dft_check_set.csv``, 15 conformational equilibria (five A-values read by key
+from ``forcefields/data/increments.csv``, tetrahydropyran, 1,3-dioxane and piperidine substituents,
+2-halocyclohexanones in the vapour and in chloroform, trans-1,2-difluorocyclohexane in three
+solvents), each with its source and flag in those files. Each value is computed as in
+``tests/dft_levels.py`` (shared with ``tests/benchmarks/measure_dft_levels.py``): a single point at
+the default level B3LYP-D3(BJ)/def2-SVP (C-PCM where the case has a solvent) at the lowest
+GFN2-xTB minimum of each chair family, ΔG = ΔE(DFT) + ΔG_RRHO(GFN2-xTB) (ΔE alone where the
+reference is an energy).
+
+**The issue's target is not met at this level.** The target is an MAE of at most 1.5 kJ/mol with
+no wrong sign where |ΔG| > 2 kJ/mol. Measured on 2026-12-02 (raw rows in
+``tests/benchmarks/results/dft_levels_2026-12-02.jsonl``): MAE 2.42 kJ/mol, 0.92 kJ/mol over the
+target, and one wrong sign (trans-1,2-difluorocyclohexane in methylcyclohexane, computed −0.90
+against +3.67 kJ/mol). This guard therefore only keeps the level from getting worse: it sits at
+the measured MAE plus :data:`MAE_MARGIN_KJ` and at the measured number of wrong signs.
+
+Margin: the computation is deterministic up to the SCF threshold (1e-9 hartree) and the GFN2-xTB
+minima; re-running two cases (piperidine N-H and 4-methyl-1,3-dioxane) after the GFN2-xTB
+determinism changes reproduced the recorded values within 0.01 kJ/mol. 0.3 kJ/mol (over 30 times
+that) leaves room for small changes of the GFN2-xTB minima while catching any real loss of
+accuracy. About an hour on two cores.
+"""
+
+from __future__ import annotations
+
+import pytest
+
+from tests.dft_levels import load_cases, summary
+
+#: The default level's label in ``tests/dft_levels.CANDIDATES``.
+DEFAULT_LEVEL = "B3LYP-D3(BJ)/def2-SVP"
+#: Measured MAE (kJ/mol) and wrong signs (|ΔG| > 2 kJ/mol) of the default level, 2026-12-02.
+MEASURED_MAE_KJ = 2.42
+MEASURED_WRONG_SIGNS = 1
+#: Margin over the run-to-run spread (see the module text).
+MAE_MARGIN_KJ = 0.3
+#: The issue's target, not met at this level (see the module text).
+TARGET_MAE_KJ = 1.5
+
+
+def check_cases(cases) -> tuple[float, int, list[str]]:
+    """MAE, wrong signs and one line per case of the default level over ``cases``."""
+    from tests.dft_levels import compute
+
+    pairs, lines = [], []
+    for case in cases:
+        value = compute(case, DEFAULT_LEVEL)["value"]
+        pairs.append((value, case.reference_kj))
+        lines.append(f"{case.key}: calc {value:.2f} ref {case.reference_kj:.2f} kJ/mol")
+    mae, wrong = summary(pairs)
+    return mae, wrong, lines
+
+
+def test_default_level_is_in_the_project():
+    from chairbuild.levels.chain import DEFAULT_DFT_BASIS, DEFAULT_DFT_FUNCTIONAL
+    from tests.dft_levels import CANDIDATES
+
+    assert CANDIDATES[DEFAULT_LEVEL] == {"functional": DEFAULT_DFT_FUNCTIONAL, "basis": DEFAULT_DFT_BASIS}
+    assert len(load_cases()) == 15
+
+
+@pytest.mark.slow
+def test_default_level_accuracy_guard():
+    mae, wrong, lines = check_cases(load_cases())
+    print("\n".join(lines) + f"\nMAE {mae:.2f} kJ/mol (target {TARGET_MAE_KJ}, not met at this level), wrong signs {wrong}")
+    assert mae <= MEASURED_MAE_KJ + MAE_MARGIN_KJ, f"MAE {mae:.2f} kJ/mol above the guard {MEASURED_MAE_KJ + MAE_MARGIN_KJ}"
+    assert wrong <= MEASURED_WRONG_SIGNS, f"{wrong} wrong signs, measured {MEASURED_WRONG_SIGNS}"
