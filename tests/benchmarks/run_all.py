@@ -9,7 +9,7 @@ from pathlib import Path
 HERE = Path(__file__).resolve().parent
 
 if __name__ == "__main__":
-    for name in ("bench_mmff.py", "bench_pipeline.py", "bench_avalues.py", "bench_batch.py"):
+    for name in ("bench_mmff.py", "bench_pipeline.py", "bench_avalues.py", "bench_batch.py", "bench_dft.py"):
         path = HERE / name
         if not path.exists():
             continue
