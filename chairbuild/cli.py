@@ -342,9 +342,9 @@ def _run_analyze(args: argparse.Namespace) -> int:
     _check_result_targets(args)
     measurements = _check_coupling_options(args)
     if args.cache:
-        from chairbuild.levels.cache import ResultCache
+        from chairbuild.levels.cache import check_cache_path
 
-        ResultCache(args.cache).close()  # an unusable cache file is refused before any work
+        check_cache_path(args.cache)  # an unusable cache path is refused before any work, nothing created
     ensembles = analyze_all(
         args.molecule,
         name=args.name,

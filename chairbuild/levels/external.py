@@ -427,7 +427,7 @@ def _folder_energies(folder, ensemble, term: EnergyTerm, max_rmsd: float):
         if f.conformer_id not in known:
             raise InputError(f"{f.path.name}: the saved result has no conformer {f.conformer_id} (its ids are 0-{max(known)})")
         charge, mult = f.attrs.get("charge"), f.attrs.get("mult")
-        if charge is not None and int(charge) != ensemble.charge or mult is not None and int(mult) != ensemble.multiplicity:
+        if (charge is not None and int(charge) != ensemble.charge) or (mult is not None and int(mult) != ensemble.multiplicity):
             raise InputError(
                 f"{f.path.name}: charge {charge} and multiplicity {mult}, the saved result has charge {ensemble.charge} "
                 f"and multiplicity {ensemble.multiplicity}"
@@ -545,6 +545,9 @@ def reweight(
         source = "mapping"
         t = EnergyTerm.ELECTRONIC if term is EnergyTerm.AUTO else term
         items = [ExternalEnergy(int(k), float(v), t, f"conformer {k}") for k, v in energies.items()]
+        bad = [i.source for i in items if not np.isfinite(i.value)]
+        if bad or not items:
+            raise InputError(f"energies must be finite numbers (kJ/mol) for at least one conformer; not finite: {', '.join(bad)}")
     elif Path(energies).is_dir():
         source = "cclib"
         items, files, passed = _folder_energies(energies, ens, term, max_rmsd)
