@@ -36,9 +36,9 @@ superposition, among the last :data:`HISTORY_SIZE`) when that geometry lies with
 ``warm_start_max_rmsd`` (default :data:`WARM_START_MAX_RMSD_A`); otherwise from PySCF's
 atomic guess. The density is rotated into the new geometry's orientation
 (``pyscf.gto.mole.ao_rotation_matrix``), and the calculation itself always runs in the
-caller's frame: the integration grid and the PCM surface are not rotation-invariant (about
-0.05 kJ/mol for N-methylpiperidine at def2-SVP), so computing in another frame would make a
-result depend on what the model computed before. Measured (``tests/benchmarks/bench_dft.py``):
+caller's frame: the integration grid and the PCM surface are not rotation-invariant (up to
+0.05 kJ/mol for N-methylpiperidine at B3LYP-D3(BJ)/def2-SVP/C-PCM), so computing in another
+frame would make a result depend on what the model computed before. Measured (``tests/benchmarks/bench_dft.py``):
 a start guess from a geometry 0.005 Å away (a Hessian step) saves about a third of the SCF
 cycles, one 0.05 Å away about a tenth, while a neighbouring conformer (0.5–1 Å) costs cycles
 rather than saving them; hence the threshold. An SCF that does not converge is retried on a
