@@ -9,6 +9,8 @@ and pulls in no heavy library:
 * :func:`chairbuild.view` shows an ensemble in a notebook;
 * :func:`chairbuild.load` reads a saved JSON result back into an ``Ensemble``
   (:func:`chairbuild.load_all` for a file with several, one per diastereomer);
+* :func:`chairbuild.reweight` re-ranks a saved result with energies computed elsewhere
+  (a CSV file or a folder of quantum-chemistry output files read with cclib);
 * :func:`chairbuild.analyze_many` analyses a list or file of molecules through a batch
   store, and :func:`chairbuild.open_store` reads such a store back.
 """
@@ -17,7 +19,7 @@ from __future__ import annotations
 
 __version__ = "0.1.0"
 
-__all__ = ["analyze", "analyze_all", "view", "load", "load_all", "analyze_many", "open_store", "__version__"]
+__all__ = ["analyze", "analyze_all", "view", "load", "load_all", "reweight", "analyze_many", "open_store", "__version__"]
 
 
 def __getattr__(name: str):
@@ -37,6 +39,10 @@ def __getattr__(name: str):
         from chairbuild.result import load_json_all
 
         return load_json_all
+    if name == "reweight":
+        from chairbuild.levels.external import reweight
+
+        return reweight
     if name == "view":
         from chairbuild.viewer import view
 

@@ -1,4 +1,5 @@
-"""Command line: ``chairbuild analyze INPUT [options]``, ``chairbuild batch INPUT --out DIR`` and ``chairbuild demo``.
+"""Command line: ``chairbuild analyze INPUT [options]``, ``chairbuild reweight RESULT ENERGIES``,
+``chairbuild batch INPUT --out DIR`` and ``chairbuild demo``.
 
 Bad input or options print one message naming the problem and exit with code 2; no
 traceback. Output files are checked before any work starts and written atomically.
@@ -78,12 +79,28 @@ def _add_analysis_options(p: argparse.ArgumentParser) -> None:
         "--method",
         choices=["mmff94", "gfn2"],
         default="mmff94",
-        help="final level: mmff94 (default, fast) or gfn2 (re-optimise the MMFF ensemble with GFN2-xTB)",
+        help="final level: mmff94 (default, fast) or gfn2 (re-optimise the MMFF ensemble with GFN2-xTB); "
+        "shorthand for --stage gfn2:optimise",
     )
-    p.add_argument("--rerank", choices=["gfn2"], default=None, help="GFN2-xTB single points at the MMFF geometries")
-    p.add_argument("--solvent", default=None, help="implicit solvent for GFN2-xTB (a name ALPB/GBSA knows, e.g. water, chloroform)")
-    p.add_argument("--solvation", choices=["alpb", "gbsa"], default="alpb", help="solvation model for --solvent (default alpb)")
-    p.add_argument("--free-energy", action="store_true", help="rank and weight by the qRRHO free energy G instead of E")
+    p.add_argument(
+        "--rerank",
+        choices=["gfn2"],
+        default=None,
+        help="GFN2-xTB single points at the MMFF geometries; shorthand for --stage gfn2:single-point",
+    )
+    p.add_argument(
+        "--solvent",
+        default=None,
+        help="implicit solvent of the gfn2 and dft levels (ALPB/GBSA names for GFN2-xTB, e.g. water, chloroform; "
+        "an unknown name lists the valid ones)",
+    )
+    p.add_argument("--solvation", choices=["alpb", "gbsa"], default="alpb", help="GFN2-xTB solvation model for --solvent (default alpb)")
+    p.add_argument(
+        "--free-energy",
+        action="store_true",
+        help="rank and weight by the qRRHO free energy G instead of E (shorthand: adds frequencies to the last level)",
+    )
+    _add_chain_options(p)
     p.add_argument("--no-twist-boats", action="store_true", help="build chairs only")
     p.add_argument(
         "--max-rotamers",
@@ -102,6 +119,56 @@ def _add_analysis_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--quiet", action="store_true", help="no progress bars and no 'wrote FILE' lines (errors still print)")
 
 
+def _add_chain_options(p: argparse.ArgumentParser) -> None:
+    from chairbuild.levels.chain import (
+        DEFAULT_DFT_BASIS,
+        DEFAULT_DFT_DISPERSION,
+        DEFAULT_DFT_FUNCTIONAL,
+        DEFAULT_DFT_SOLVATION,
+    )
+
+    g = p.add_argument_group(
+        "chain of levels after the MMFF94 build (replaces --method, --rerank and --free-energy; see README)"
+    )
+    g.add_argument(
+        "--stage",
+        action="append",
+        default=None,
+        metavar="SPEC",
+        help="one stage, ENGINE:OPERATION[+OPERATION][,key=value...]: engines mmff94, gfn2, dft; operations "
+        "single-point, optimise, frequencies; keys window (kJ/mol), solvent, solvation, functional, basis, dispersion; "
+        "e.g. --stage gfn2:optimise+frequencies,window=8 --stage dft:single-point; repeatable, run in the order given",
+    )
+    g.add_argument(
+        "--functional",
+        default=None,
+        metavar="NAME",
+        help=f"exchange-correlation functional of the dft stages, a PySCF/libxc name (default {DEFAULT_DFT_FUNCTIONAL})",
+    )
+    g.add_argument(
+        "--basis", default=None, metavar="NAME", help=f"orbital basis of the dft stages, a PySCF name (default {DEFAULT_DFT_BASIS})"
+    )
+    g.add_argument(
+        "--dispersion",
+        choices=["d3bj", "none"],
+        default=None,
+        help=f"dispersion correction of the dft stages (default {DEFAULT_DFT_DISPERSION})",
+    )
+    g.add_argument(
+        "--dft-solvation",
+        choices=["cpcm", "iefpcm", "smd"],
+        default=None,
+        help=f"implicit-solvent model of the dft stages with --solvent (default {DEFAULT_DFT_SOLVATION})",
+    )
+    g.add_argument(
+        "--cache",
+        default=None,
+        metavar="PATH",
+        help="results cache file (SQLite, created when missing): finished single points, optimisations and Hessians "
+        "are stored as they arrive and reused by a later run",
+    )
+
+
 def _add_coupling_options(p: argparse.ArgumentParser) -> None:
     g = p.add_argument_group("vicinal couplings 3J(H,H) (see chairbuild.couplings)")
     g.add_argument("--couplings", action="store_true", help="print the coupling table: pair, limiting J per family, ensemble <J>")
@@ -118,6 +185,71 @@ def _add_coupling_options(p: argparse.ArgumentParser) -> None:
         default="both",
         help="population model of --fit-couplings (default both)",
     )
+
+
+def _add_reweight_parser(sub) -> None:
+    from chairbuild.levels.external import DEFAULT_LEVEL_NAME, DEFAULT_MAX_RMSD_A, EnergyTerm
+
+    rw = sub.add_parser(
+        "reweight",
+        help="re-rank a saved JSON result with energies computed elsewhere (CSV file, or output files read with cclib)",
+        description="Re-rank the conformers of a saved result (the JSON of chairbuild analyze -o result.json) with "
+        "energies you computed elsewhere, and write the same tables, files and report at your level. The saved "
+        "file is not changed; the new result keeps every level's energies.",
+        epilog=_epilog(),
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    rw.add_argument("result", help="JSON result written by chairbuild analyze (-o result.json or --json)")
+    rw.add_argument(
+        "energies",
+        help="a CSV file with the columns conformer,energy,unit (conformer: id or exported file name such as "
+        "rank_001.xyz; unit: hartree, eV, kJ/mol or kcal/mol), or a folder of output files that cclib reads, each "
+        "named like its exported conformer (rank_001.out, rank_001.cjson, ...)",
+    )
+    rw.add_argument(
+        "--record", type=_positive_int, default=None, help="1-based result of a JSON file holding several (one per diastereomer)"
+    )
+    rw.add_argument(
+        "--energy-term",
+        choices=[t.value for t in EnergyTerm],
+        default=EnergyTerm.AUTO.value,
+        help="which energy of the output files ranks: electronic (the last SCF energy), electronic+dispersion (plus a "
+        "dispersion correction reported apart), mp, cc, free-energy, or auto (the first of free-energy, cc, mp, "
+        "electronic that every file has; default); for a CSV, what its numbers are (auto: electronic)",
+    )
+    rw.add_argument(
+        "--level-name",
+        default=None,
+        metavar="NAME",
+        help=f"name of your level in the result (default: from the files when they all name it, else {DEFAULT_LEVEL_NAME!r})",
+    )
+    rw.add_argument(
+        "--max-rmsd",
+        type=_positive_float,
+        default=DEFAULT_MAX_RMSD_A,
+        metavar="A",
+        help=f"largest RMSD in Å between a file's geometry and its conformer after superposition (default {DEFAULT_MAX_RMSD_A:g})",
+    )
+    rw.add_argument(
+        "--add-thermal-correction",
+        action="store_true",
+        help="add the saved result's thermal correction G_RRHO to your energies (the saved result must have frequencies)",
+    )
+    rw.add_argument(
+        "--window",
+        type=_positive_float,
+        default=None,
+        help="keep conformers within this energy of the lowest, in --units (default: the saved result's window)",
+    )
+    rw.add_argument("--units", choices=["kj", "kcal"], default="kj", help="energy unit of all output (default kj)")
+    rw.add_argument("--json", action="store_true", help="print the JSON result to stdout instead of the table")
+    rw.add_argument(
+        "-o", "--output", action="append", default=[], metavar="PATH",
+        help="write results; format by extension (.sdf .xyz .csv .json) or a directory (one XYZ per conformer); repeatable",
+    )
+    rw.add_argument("--report", metavar="PATH", default=None, help="write a self-contained HTML report")
+    rw.add_argument("--overwrite", action="store_true", help="replace the rank_*.xyz files of an earlier run in an -o directory")
+    rw.add_argument("--quiet", action="store_true", help="no 'wrote FILE' lines (errors still print)")
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -160,6 +292,7 @@ def build_parser() -> argparse.ArgumentParser:
     )
     _add_coupling_options(an)
     _add_analysis_options(an)
+    _add_reweight_parser(sub)
     from chairbuild.batch.cli import add_batch_parser
 
     add_batch_parser(sub, _add_analysis_options, _positive_int, _positive_float)
@@ -189,6 +322,17 @@ def _analysis_kwargs(args: argparse.Namespace) -> dict:
     }
     if args.window is not None:
         kwargs["window"] = unit.to_kj(args.window)
+    if args.stage is not None:
+        kwargs["stages"] = list(args.stage)
+    for flag, key in (
+        ("functional", "functional"),
+        ("basis", "basis"),
+        ("dispersion", "dispersion"),
+        ("dft_solvation", "dft_solvation_model"),
+        ("cache", "cache"),
+    ):
+        if getattr(args, flag) is not None:
+            kwargs[key] = getattr(args, flag)
     return kwargs
 
 
@@ -201,18 +345,17 @@ def _say(args: argparse.Namespace, text: str) -> None:
 def _run_analyze(args: argparse.Namespace) -> int:
     import json
 
-    from chairbuild.output import check_target, format_table, write_many
+    from chairbuild.output import format_table
     from chairbuild.pipeline import analyze_all
     from chairbuild.result import EnergyUnit
 
     unit = EnergyUnit.parse(args.units)
-    for target in args.output:
-        check_target(target, args.overwrite)
-    if args.report:
-        from chairbuild.report import check_report_path
-
-        check_report_path(args.report)
+    _check_result_targets(args)
     measurements = _check_coupling_options(args)
+    if args.cache:
+        from chairbuild.levels.cache import check_cache_path
+
+        check_cache_path(args.cache)  # an unusable cache path is refused before any work, nothing created
     ensembles = analyze_all(
         args.molecule,
         name=args.name,
@@ -220,13 +363,7 @@ def _run_analyze(args: argparse.Namespace) -> int:
         enumerate_stereo=args.enumerate_stereo,
         **_analysis_kwargs(args),
     )
-    for target in args.output:
-        for path in write_many(ensembles, target, unit, args.overwrite):
-            _say(args, f"wrote {path}")
-    if args.report:
-        from chairbuild.report import write_report
-
-        _say(args, f"wrote {write_report(ensembles, args.report)}")
+    _write_results(args, ensembles, unit)
     fits = _write_couplings(args, ensembles, measurements)
     if args.json:
         dicts = [e.to_dict(unit) for e in ensembles]
@@ -246,6 +383,65 @@ def _run_analyze(args: argparse.Namespace) -> int:
                     print("\n" + fit.format())
     sys.stdout.flush()
     return EXIT_OK
+
+
+def _run_reweight(args: argparse.Namespace) -> int:
+    import json
+
+    from chairbuild.errors import OptionError
+    from chairbuild.levels.external import reweight
+    from chairbuild.optnames import spell
+    from chairbuild.output import format_table
+    from chairbuild.result import EnergyUnit, load_json_all
+
+    unit = EnergyUnit.parse(args.units)
+    _check_result_targets(args)
+    saved = load_json_all(args.result)
+    if args.record is None and len(saved) > 1:
+        raise OptionError(f"{args.result!r} holds {len(saved)} results (one per diastereomer); choose one with {spell('record')} N")
+    if args.record is not None and args.record > len(saved):
+        raise OptionError(f"{spell('record', args.record)}: {args.result!r} holds {len(saved)} result(s)")
+    ensemble = reweight(
+        saved[(args.record or 1) - 1],
+        args.energies,
+        energy_term=args.energy_term,
+        level_name=args.level_name,
+        max_rmsd=args.max_rmsd,
+        add_thermal_correction=args.add_thermal_correction,
+        window=None if args.window is None else unit.to_kj(args.window),
+    )
+    _write_results(args, [ensemble], unit)
+    if args.json:
+        print(json.dumps(ensemble.to_dict(unit), indent=2, allow_nan=False))
+    else:
+        print(format_table(ensemble, unit))
+    sys.stdout.flush()
+    return EXIT_OK
+
+
+def _check_result_targets(args: argparse.Namespace) -> None:
+    """Refuse unusable -o and --report paths before any work."""
+    from chairbuild.output import check_target
+
+    for target in args.output:
+        check_target(target, args.overwrite)
+    if args.report:
+        from chairbuild.report import check_report_path
+
+        check_report_path(args.report)
+
+
+def _write_results(args: argparse.Namespace, ensembles, unit) -> None:
+    """Write the -o files and the --report of ``ensembles``."""
+    from chairbuild.output import write_many
+
+    for target in args.output:
+        for path in write_many(ensembles, target, unit, args.overwrite):
+            _say(args, f"wrote {path}")
+    if args.report:
+        from chairbuild.report import write_report
+
+        _say(args, f"wrote {write_report(ensembles, args.report)}")
 
 
 def _silence_stdout() -> None:
@@ -310,6 +506,8 @@ def main(argv: Sequence[str] | None = None) -> int:
         with command_line():
             if args.command == "analyze":
                 return _run_analyze(args)
+            if args.command == "reweight":
+                return _run_reweight(args)
             if args.command == "batch":
                 from chairbuild.batch.cli import run_batch_command
 

@@ -29,6 +29,10 @@ KJ_TO_KCAL = 1.0 / CAL
 HARTREE_J = 4.3597447222071e-18
 #: Hartree energy in kJ/mol.
 HARTREE_TO_KJ = HARTREE_J * N_A / 1000.0
+#: Electronvolt, J (exact: the elementary charge times 1 V).
+ELECTRON_VOLT_J = 1.602176634e-19
+#: Electronvolt in kJ/mol.
+EV_TO_KJ = ELECTRON_VOLT_J * N_A / 1000.0
 #: Bohr radius, Å.
 BOHR_TO_ANGSTROM = 0.529177210903
 #: Å per bohr inverse.

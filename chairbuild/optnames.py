@@ -35,6 +35,16 @@ CLI_FLAGS: dict[str, str] = {
     "threads": "--threads",
     "progress": "--quiet",
     "overwrite": "--overwrite",
+    "stages": "--stage",
+    "functional": "--functional",
+    "basis": "--basis",
+    "dispersion": "--dispersion",
+    "dft_solvation_model": "--dft-solvation",
+    "cache": "--cache",
+    "energy_term": "--energy-term",
+    "level_name": "--level-name",
+    "max_rmsd": "--max-rmsd",
+    "add_thermal_correction": "--add-thermal-correction",
 }
 
 #: Boolean options whose flag means the opposite value (``--no-twist-boats``: twist_boats=False).

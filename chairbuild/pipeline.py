@@ -15,6 +15,12 @@ import numpy as np
 
 from chairbuild.constants import T_DEFAULT
 from chairbuild.errors import OptionError, StereoError
+from chairbuild.levels.chain import (
+    DEFAULT_DFT_BASIS,
+    DEFAULT_DFT_DISPERSION,
+    DEFAULT_DFT_FUNCTIONAL,
+    DEFAULT_DFT_SOLVATION,
+)
 from chairbuild.minimise import ForceFieldVariant
 from chairbuild.optnames import spell
 from chairbuild.result import Status
@@ -27,9 +33,6 @@ DEFAULT_WINDOW_KJ = 30.0
 #: window plus this margin (kJ/mol) above the lowest are not minimised further
 #: (:func:`chairbuild.minimise.minimise_starts`).
 SCREEN_MARGIN_KJ = 20.0
-#: Default DFT level of dft stages, chosen by measurement (README, "Chains of levels and DFT").
-DEFAULT_DFT_FUNCTIONAL = "b3lyp"
-DEFAULT_DFT_BASIS = "def2-svp"
 
 
 @dataclass(frozen=True)
@@ -100,8 +103,8 @@ class AnalysisOptions:
     stages: tuple = ()
     functional: str = DEFAULT_DFT_FUNCTIONAL
     basis: str = DEFAULT_DFT_BASIS
-    dispersion: str = "d3bj"
-    dft_solvation_model: str = "cpcm"
+    dispersion: str = DEFAULT_DFT_DISPERSION
+    dft_solvation_model: str = DEFAULT_DFT_SOLVATION
     cache: str | None = None
     extra: dict[str, Any] = field(default_factory=dict)
     chain: Any = field(default=None, init=False)
@@ -136,12 +139,26 @@ class AnalysisOptions:
         if self.stages:
             if self.method is not Engine.MMFF94 or self.rerank is not None or self.free_energy:
                 raise OptionError(
-                    "stages replace method, rerank and free_energy (shorthands of a chain); give one or the other "
+                    f"{spell('stages')} and the shorthands {spell('method')}, {spell('rerank')}, {spell('free_energy')} "
+                    "do not mix; give one or the other "
                     "(for free energies add 'frequencies' to a stage, e.g. 'gfn2:optimise+frequencies')"
                 )
             chain = make_chain(self.stages)
         else:
             chain = shorthand_chain(self.method.value, None if self.rerank is None else self.rerank.value, self.free_energy)
+        if not any(st.engine is Engine.DFT for st in chain.stages):
+            defaults = {
+                "functional": DEFAULT_DFT_FUNCTIONAL,
+                "basis": DEFAULT_DFT_BASIS,
+                "dispersion": DEFAULT_DFT_DISPERSION,
+                "dft_solvation_model": DEFAULT_DFT_SOLVATION,
+            }
+            given = [spell(k) for k, d in defaults.items() if str(getattr(self, k)).strip().lower() != d]
+            if given:
+                raise OptionError(
+                    f"{', '.join(given)} set the DFT level, but no stage is a dft stage; add one "
+                    f"({spell('stages')}, e.g. 'dft:single-point')"
+                )
         dft_defaults = {
             "functional": self.functional,
             "basis": self.basis,
@@ -227,7 +244,19 @@ def analyze_all(
     if len(prepared) > 1 and not enumerate_stereo:
         raise StereoError(f"several diastereomers; use {spell('enumerate_stereo', True)}")
     prepared = [replace(p, notes=p.notes + _open_shell_notes(p, opts)) for p in prepared]
+    for p in prepared:
+        _check_models(p.mol, opts)
     return [_run_one(p, opts) for p in prepared]
+
+
+def _check_models(mol, opts: AnalysisOptions) -> None:
+    """Build each dft stage's model once before any work: basis names, elements and the basis-function limit."""
+    from chairbuild.levels.chain import Engine
+    from chairbuild.levels.runner import build_model
+
+    for stage in opts.chain.stages:
+        if stage.engine is Engine.DFT:
+            build_model(mol, stage, opts.forcefield.value)
 
 
 def _open_shell_notes(prepared, opts: AnalysisOptions) -> tuple[str, ...]:

@@ -30,12 +30,19 @@ gradient. Checked against central finite differences in ``tests/test_dft.py``.
 
 Start guess, failures
 ---------------------
-With ``reuse_density`` (default) each SCF starts from the converged density of the
-nearest geometry this model has already computed (root-mean-square deviation after a
-Kabsch superposition, among the last :data:`HISTORY_SIZE`); the new geometry is first
-rotated into that geometry's frame so the density's p and d blocks point the same way
-(the energy is invariant; the gradient is rotated back). An SCF that does not converge is
-retried on a ladder: level shift, then damping with a later start of DIIS, then
+With ``reuse_density`` (default) an SCF starts from the converged density of the nearest
+geometry this model has already computed (root-mean-square deviation after a Kabsch
+superposition, among the last :data:`HISTORY_SIZE`) when that geometry lies within
+``warm_start_max_rmsd`` (default :data:`WARM_START_MAX_RMSD_A`); otherwise from PySCF's
+atomic guess. The density is rotated into the new geometry's orientation
+(``pyscf.gto.mole.ao_rotation_matrix``), and the calculation itself always runs in the
+caller's frame: the integration grid and the PCM surface are not rotation-invariant (up to
+0.05 kJ/mol for N-methylpiperidine at B3LYP-D3(BJ)/def2-SVP/C-PCM), so computing in another
+frame would make a result depend on what the model computed before. Measured (``tests/benchmarks/bench_dft.py``):
+a start guess from a geometry 0.005 Å away (a Hessian step) saves about a third of the SCF
+cycles, one 0.05 Å away about a tenth, while a neighbouring conformer (0.5–1 Å) costs cycles
+rather than saving them; hence the threshold. An SCF that does not converge is retried on a
+ladder: level shift, then damping with a later start of DIIS, then
 second-order SCF (Newton), each from the atomic guess; when the last fails,
 :class:`~chairbuild.errors.ConvergenceError` names every attempt.
 
@@ -76,6 +83,9 @@ __all__ = [
 DEFAULT_MAX_BASIS_FUNCTIONS = 600
 #: How many converged densities a model keeps as start guesses.
 HISTORY_SIZE = 8
+#: Largest RMSD (Å, after superposition) of a kept geometry whose density starts a new SCF
+#: (measured, see the module notes and ``tests/benchmarks/bench_dft.py``).
+WARM_START_MAX_RMSD_A = 0.1
 #: Solvation models accepted, lower case -> PySCF's name of the PCM variant (None: SMD).
 SOLVATION_MODELS = {"cpcm": "C-PCM", "iefpcm": "IEF-PCM", "smd": None}
 #: Extra spellings of solvent names (lower case) -> the name in PySCF's table.
@@ -102,7 +112,7 @@ _LADDER = ("level shift 0.3 Eh", "damping 0.5, DIIS from cycle 8", "second-order
 def _solvent_db() -> dict[str, list[float]]:
     from pyscf.solvent import smd
 
-    return {k.lower(): v for k, v in smd.solvent_db.items()}
+    return {k.lower(): v for k, v in smd.solvent_db.items() if k.strip()}
 
 
 def available_dft_solvents(include_aliases: bool = False) -> list[str]:
@@ -233,7 +243,10 @@ class DFTModel(EnergyModel):
     max_scf_cycles : int
         SCF cycles per attempt (default 100).
     reuse_density : bool
-        Start each SCF from the nearest computed geometry's density (default True).
+        Start an SCF from the nearest computed geometry's density when it lies within
+        ``warm_start_max_rmsd`` (default True).
+    warm_start_max_rmsd : float
+        Å; farther geometries start from the atomic guess (default :data:`WARM_START_MAX_RMSD_A`).
     threads : int, optional
         OpenMP threads for PySCF during this model's calls; None leaves PySCF's setting.
     max_memory_mb : int
@@ -263,6 +276,7 @@ class DFTModel(EnergyModel):
         max_basis_functions: int = DEFAULT_MAX_BASIS_FUNCTIONS,
         max_scf_cycles: int = 100,
         reuse_density: bool = True,
+        warm_start_max_rmsd: float = WARM_START_MAX_RMSD_A,
         threads: int | None = None,
         max_memory_mb: int = 2000,
         label: str | None = None,
@@ -277,6 +291,9 @@ class DFTModel(EnergyModel):
             raise OptionError(f"max_scf_cycles must be at least 1, got {max_scf_cycles!r}")
         self.max_scf_cycles = int(max_scf_cycles)
         self.reuse_density = bool(reuse_density)
+        if not float(warm_start_max_rmsd) >= 0:
+            raise OptionError(f"warm_start_max_rmsd must be >= 0 Å, got {warm_start_max_rmsd!r}")
+        self.warm_start_max_rmsd = float(warm_start_max_rmsd)
         self.threads = threads
         self.max_memory_mb = int(max_memory_mb)
         self.name = self.settings.name
@@ -314,8 +331,20 @@ class DFTModel(EnergyModel):
         mol.spin = self.multiplicity - 1
         mol.verbose = 0
         mol.max_memory = self.max_memory_mb
+        import warnings
+
+        from pyscf.lib.exceptions import BasisNotFoundError
+
         try:
-            mol.build()
+            with warnings.catch_warnings():  # PySCF's hint to install another package, for an unknown basis
+                warnings.simplefilter("ignore", UserWarning)
+                mol.build()
+        except BasisNotFoundError as exc:
+            detail = " ".join(str(exc).split())
+            raise OptionError(
+                f"basis {self.settings.basis!r} unknown to PySCF for the elements {', '.join(sorted(set(self.symbols)))} "
+                f"({detail})"
+            ) from None
         except RuntimeError as exc:
             raise InputError(f"{self.label}: {exc}") from None
         except (KeyError, ValueError, OSError) as exc:
@@ -364,30 +393,37 @@ class DFTModel(EnergyModel):
             raise InputError(f"{self.label}: coordinates contain NaN or infinity")
         return x
 
-    def _guess(self, x: np.ndarray) -> tuple[np.ndarray, np.ndarray | None, Any]:
-        """Return (coordinates in the guess's frame, rotation applied or None, density or None)."""
+    def _guess(self, x: np.ndarray, mol) -> Any:
+        """The kept density nearest to ``x``, rotated into its orientation; None beyond the threshold."""
         if not (self.reuse_density and self._history):
-            return x, None, None
+            return None
         best = None
         for ref, dm in self._history:
-            rot, moved, rmsd = _superpose(x, ref)
+            rot, _, rmsd = _superpose(x, ref)
             if best is None or rmsd < best[0]:
-                best = (rmsd, rot, moved, dm)
-        return best[2], best[1], best[3]
+                best = (rmsd, rot, dm)
+        rmsd, rot, dm = best
+        if rmsd > self.warm_start_max_rmsd:
+            return None
+        from pyscf.gto.mole import ao_rotation_matrix
+
+        # rot superposes x on ref; as PySCF's orientation argument it turns the kept density into
+        # x's orientation (checked against a converged density in tests/test_dft.py)
+        u = ao_rotation_matrix(mol, rot)
+        return np.einsum("ij,...jk,lk->...il", u, dm, u)
 
     def _run(self, coords: np.ndarray, gradient: bool) -> tuple[float, np.ndarray | None]:
-        """One SCF (with the retry ladder); energy in hartree, gradient in hartree/bohr (input frame)."""
+        """One SCF (with the retry ladder) in the caller's frame; energy in hartree, gradient in hartree/bohr."""
         from pyscf import lib
 
         x = self._check_coords(coords)
-        frame, rot, dm0 = self._guess(x)
         self.n_geometries += 1
         previous_threads = lib.num_threads()
         if self.threads is not None:
             lib.num_threads(int(self.threads))
         try:
-            mol = self._mole(frame * ANGSTROM_TO_BOHR)
-            mf, record = self._converge(mol, dm0)
+            mol = self._mole(x * ANGSTROM_TO_BOHR)
+            mf, record = self._converge(mol, self._guess(x, mol))
             energy = float(mf.e_tot)
             grad = None
             if gradient:
@@ -402,10 +438,8 @@ class DFTModel(EnergyModel):
         self.last_scf = record
         self.total_scf_cycles += record.cycles
         if self.reuse_density:
-            self._history.append((frame, mf.make_rdm1()))
+            self._history.append((x.copy(), mf.make_rdm1()))
             del self._history[:-HISTORY_SIZE]
-        if grad is not None and rot is not None:
-            grad = grad @ rot  # frame = (x - cx) @ rot.T + c_ref, so dE/dx = dE/dframe @ rot
         return energy, grad
 
     def _converge(self, mol, dm0):

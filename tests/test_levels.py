@@ -73,7 +73,7 @@ def test_radical_needs_an_open_shell_ranking_level():
 
 
 def test_stages_and_shorthands_do_not_mix():
-    with pytest.raises(OptionError, match="stages replace method, rerank and free_energy"):
+    with pytest.raises(OptionError, match="stages and the shorthands method, rerank, free_energy do not mix"):
         analyze("CC1CCCCC1", stages=["gfn2:single-point"], free_energy=True)
     with pytest.raises(OptionError, match="valid names: .*water"):
         analyze("CC1CCCCC1", stages=["gfn2:optimise", "dft:single-point,solvent=unobtainium"])
@@ -135,3 +135,15 @@ def test_scf_failure_becomes_a_status_on_the_record(monkeypatch):
     assert len(ens.conformers) == 0
     assert ens.rejected and all(r.status is Status.NOT_CONVERGED for r in ens.rejected)
     assert all("did not converge" in r.message and "MMFF94" in r.energies for r in ens.rejected)
+
+
+def test_dft_stage_gives_the_same_ranking_with_one_or_two_workers():
+    # Hartree-Fock through the DFT stage (no integration grid): one worker runs the tasks in this
+    # process, two spread them over worker processes; results must not depend on it
+    opts = dict(stages=["mmff94,window=8", "dft:single-point"], functional="hf", basis="sto-3g", dispersion=None,
+                twist_boats=False)
+    one = analyze("C1CCNCC1", threads=1, **opts)
+    two = analyze("C1CCNCC1", threads=2, **opts)
+    assert len(one.conformers) >= 2
+    assert_close([r.relative_energy for r in two.conformers], [r.relative_energy for r in one.conformers], 1e-6,
+                 "relative HF/STO-3G energies, two workers vs one (kJ/mol)")

@@ -21,7 +21,7 @@ import numpy as np
 
 from chairbuild.errors import OutputError
 
-__all__ = ["ResultCache", "result_key", "COORDINATE_DECIMALS"]
+__all__ = ["ResultCache", "result_key", "check_cache_path", "COORDINATE_DECIMALS"]
 
 #: Decimals of Å kept in the geometry hash.
 COORDINATE_DECIMALS = 6
@@ -46,6 +46,38 @@ def result_key(level: str, operation: str, symbols: Sequence[str], coords: np.nd
     h.update(json.dumps([level, operation, list(symbols), int(charge), int(multiplicity)]).encode())
     h.update(np.ascontiguousarray(x).tobytes())
     return h.hexdigest()
+
+
+def check_cache_path(path: str | Path) -> None:
+    """Refuse a cache path that cannot be used, without creating or changing anything.
+
+    An existing file must be a SQLite database (a results cache or an empty one); a new one
+    needs an existing, writable folder.
+
+    Raises
+    ------
+    OutputError
+    """
+    import os
+
+    p = Path(path)
+    if p.is_dir():
+        raise OutputError(f"cannot use {str(p)!r} as a results cache: it is a folder")
+    if p.exists():
+        try:
+            db = sqlite3.connect(f"file:{p.resolve()}?mode=ro", uri=True)
+            try:
+                db.execute("SELECT name FROM sqlite_master").fetchall()
+            finally:
+                db.close()
+        except sqlite3.DatabaseError as exc:
+            raise OutputError(f"cannot use {str(p)!r} as a results cache: {exc}") from None
+        if not os.access(p, os.W_OK):
+            raise OutputError(f"cannot use {str(p)!r} as a results cache: not writable")
+        return
+    folder = p.parent if str(p.parent) else Path(".")
+    if not folder.is_dir() or not os.access(folder, os.W_OK):
+        raise OutputError(f"cannot use {str(p)!r} as a results cache: no writable folder {str(folder)!r}")
 
 
 class ResultCache:

@@ -53,12 +53,22 @@ __all__ = [
     "shorthand_chain",
     "REOPTIMISE_MARGIN_KJ",
     "RRHO_KEY",
+    "DEFAULT_DFT_FUNCTIONAL",
+    "DEFAULT_DFT_BASIS",
+    "DEFAULT_DFT_DISPERSION",
+    "DEFAULT_DFT_SOLVATION",
 ]
 
 #: Default extra window (kJ/mol) over the final window for the conformers passed on to a later stage.
 REOPTIMISE_MARGIN_KJ = 10.0
 #: Key of ``ConformerRecord.thermo`` holding G − E of the frequency stage.
 RRHO_KEY = "rrho_correction"
+#: Default DFT level of dft stages, chosen by measurement (README, "Chains of levels and DFT").
+DEFAULT_DFT_FUNCTIONAL = "b3lyp"
+DEFAULT_DFT_BASIS = "def2-svp"
+DEFAULT_DFT_DISPERSION = "d3bj"
+#: Default implicit-solvent model of dft stages (used when a solvent is given).
+DEFAULT_DFT_SOLVATION = "cpcm"
 
 
 class Engine(Choice):

@@ -15,8 +15,12 @@ message on the conformer's record.
 Workers: ``threads`` processes (default the number of CPUs), each with one OpenMP thread
 (libgomp's thread pool is not fork-safe, and for these molecule sizes one thread per
 conformer measured faster than several threads on one conformer, see
-:mod:`chairbuild.forcefields.xtb`); below ``PARALLEL_MIN_TASKS`` tasks, or without
-``fork``, the tasks run in this process.
+:mod:`chairbuild.forcefields.xtb`); below ``PARALLEL_MIN_TASKS`` tasks (two for a DFT
+stage, whose single point takes tens of seconds against milliseconds to start a worker),
+or without ``fork``, the tasks run in this process; a lone DFT task there gets ``threads``
+OpenMP threads. A DFT model's warm start helps only between geometries closer than
+:data:`chairbuild.forcefields.dft.WARM_START_MAX_RMSD_A` (the steps of one Hessian or
+optimisation, which stay in one task), so spreading conformers over workers loses nothing.
 """
 
 from __future__ import annotations
@@ -245,8 +249,12 @@ class StageRunner:
                 self.cache.put(self._key(kind, coords_list[i]), payload)
             bar.update(1)
 
+        dft = self.stage.engine is Engine.DFT
+        min_tasks = 2 if dft else self.PARALLEL_MIN_TASKS
         try:
-            if self.workers <= 1 or len(order) < self.PARALLEL_MIN_TASKS or not _fork_available():
+            if self.workers <= 1 or len(order) < min_tasks or not _fork_available():
+                if dft:
+                    self.local.threads = self.workers  # one task at a time: its SCF uses the cores
                 for i in order:
                     done(i, _run_task(self.local, kind, coords_list[i]))
             else:
