@@ -97,14 +97,14 @@ def family_minima(smiles: str, temperature: float):
     return Chem.MolFromMolBlock(ens.mol_block, removeHs=False), out
 
 
-def compute(case: Case, level: str, cache=None) -> dict:
+def compute(case: Case, level: str, cache=None, threads: int = 1) -> dict:
     """ΔG or ΔE (axial − equatorial, kJ/mol) at ``level`` for ``case``, with seconds and SCF cycles per single point."""
     from chairbuild.forcefields.dft import DFTModel, DFTSettings
     from chairbuild.levels.cache import result_key
 
     mol, minima = family_minima(case.smiles, case.temperature)
     settings = DFTSettings(solvent=case.dft_solvent, **CANDIDATES[level])
-    model = DFTModel(mol, settings, threads=1, label=case.key)
+    model = DFTModel(mol, settings, threads=threads, label=case.key)
     energies, seconds, cycles = [], [], []
     for coords, _ in minima:
         key = result_key(model.name, "energy", model.symbols, coords, model.charge, model.multiplicity)

@@ -68,7 +68,7 @@ def test_mixed_batch_every_row_present_in_order_with_its_status():
     expected = {r.index: RowStatus.OK for r in records}
     expected.update({12: RowStatus.BAD_INPUT, 13: RowStatus.BAD_INPUT, 14: RowStatus.BAD_INPUT, 15: RowStatus.UNTYPABLE,
                      16: RowStatus.BAD_INPUT, 18: RowStatus.TIMEOUT, 24: RowStatus.CRASHED, 25: RowStatus.CRASHED,
-                     26: RowStatus.CRASHED, 27: RowStatus.NOT_CONVERGED})
+                     26: RowStatus.CRASHED, 27: RowStatus.NOT_CONVERGED, 28: RowStatus.BAD_INPUT})
     # a radical is analysed or refused depending on the ranking level's rules: the same as analyze() says
     expected[17] = _expected_status(records[17].payload)
     assert {i: RowStatus.parse(s) for i, s in zip(csv["index"], csv["status"])} == expected
@@ -79,6 +79,7 @@ def test_mixed_batch_every_row_present_in_order_with_its_status():
         assert "\n" not in error
     assert "SIGSEGV" in csv.loc[25, "error"] and "SIGKILL" in csv.loc[26, "error"] and "status 70" in csv.loc[24, "error"]
     assert "invalid SMILES" in csv.loc[12, "error"] and "diastereomers" in csv.loc[16, "error"]
+    assert "too large for the systematic search" in csv.loc[28, "error"]
     # the batch changes no figure: row 1 equals analyze() in this process
     from chairbuild import analyze
 

@@ -1,9 +1,10 @@
 """Measure the candidate DFT levels on the check set; resumable through a results cache.
 
-Usage: ``python tests/benchmarks/measure_dft_levels.py [--cache FILE] [--out FILE] [--levels L1,L2]``.
+Usage: ``python tests/benchmarks/measure_dft_levels.py [--cache FILE] [--out FILE] [--levels L1,L2]
+[--tz-all] [--threads N] [--skip-gfn2]``.
 Writes one JSON line per (level, case) to ``--out`` as soon as it is computed and prints
 the summary table (MAE, wrong signs with |ΔG| > 2 kJ/mol, seconds per single point).
-The def2-TZVP candidate runs on the subset ``TZ_SUBSET`` only.
+The def2-TZVP candidate runs on the subset ``TZ_SUBSET`` only, or on every case with ``--tz-all``.
 """
 
 from __future__ import annotations
@@ -23,6 +24,9 @@ def main(argv=None) -> int:
     p.add_argument("--cache", default="dft_levels.sqlite")
     p.add_argument("--out", default="dft_levels.jsonl")
     p.add_argument("--levels", default=",".join(CANDIDATES))
+    p.add_argument("--tz-all", action="store_true", help="run the def2-TZVP candidate on every case, not the subset")
+    p.add_argument("--threads", type=int, default=1, help="threads per single point")
+    p.add_argument("--skip-gfn2", action="store_true", help="do not recompute the GFN2-xTB rows")
     args = p.parse_args(argv)
     from chairbuild.levels.cache import ResultCache
 
@@ -30,16 +34,16 @@ def main(argv=None) -> int:
     cases = load_cases()
     out = Path(args.out)
     rows = []
-    for case in cases:
+    for case in [] if args.skip_gfn2 else cases:
         row = {"level": "GFN2-xTB (gas)", "case": case.key, "reference": case.reference_kj, "value": gfn2_value(case)}
         rows.append(row)
         with out.open("a") as fh:
             fh.write(json.dumps(row) + "\n")
     for level in args.levels.split(","):
         for case in cases:
-            if "TZVP" in level and case.key not in TZ_SUBSET:
+            if "TZVP" in level and case.key not in TZ_SUBSET and not args.tz_all:
                 continue
-            res = compute(case, level, cache)
+            res = compute(case, level, cache, threads=args.threads)
             row = {"level": level, "case": case.key, "reference": case.reference_kj, **res}
             rows.append(row)
             with out.open("a") as fh:
