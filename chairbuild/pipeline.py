@@ -290,7 +290,6 @@ def _run_one(prepared, opts: AnalysisOptions):
     from chairbuild import __version__
     from chairbuild.build import build_starting_structures
     from chairbuild.minimise import deduplicate, minimise_starts
-    from chairbuild.input import charge_and_multiplicity
     from chairbuild.levels.apply import run_chain
     from chairbuild.limits import REDUCED_MAX_ROTAMERS, check_search_size
     from chairbuild.rings import analyse_rings

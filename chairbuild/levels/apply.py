@@ -19,11 +19,10 @@ import time
 from dataclasses import dataclass, field, replace
 from typing import Sequence
 
-import numpy as np
 from rdkit import Chem
 
 from chairbuild.build import stereo_signature
-from chairbuild.levels.chain import RRHO_KEY, Chain, Engine, Operation, Stage
+from chairbuild.levels.chain import RRHO_KEY, Chain, Engine, Operation
 from chairbuild.levels.runner import StageRunner, TaskFailure, level_name
 from chairbuild.minimise import MinimisedStructure, deduplicate
 from chairbuild.result import Status

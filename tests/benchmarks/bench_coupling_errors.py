@@ -74,27 +74,14 @@ def _mae(values: list[float]) -> float:
     return float(np.mean(finite)) if finite else float("nan")
 
 
-def ring_couplings(rows: list[dict[str, str]], analyses: Analyses) -> list[dict]:
-    """Check 1: ⟨J⟩ of ring couplings against measured values."""
+def measured_couplings(rows: list[dict[str, str]], analyses: Analyses, kind: str) -> list[dict]:
+    """Checks 1 and 2a: ⟨J⟩ against the measured values of the rows of ``kind``.
+
+    ``kind`` is ``"coupling"`` (ring couplings) or ``"hydroxymethyl"`` (predicted ⟨J5,6R⟩, ⟨J5,6S⟩).
+    """
     out = []
     for r in rows:
-        if r["kind"] != "coupling" or not r["smiles"] or not r["proton_a"]:
-            continue
-        ens = analyses(r["smiles"], r["molecule"])
-        rec = ens.couplings.find(r["proton_a"], r["proton_b"])
-        out.append({
-            "molecule": r["molecule"], "solvent": r["solvent"], "quantity": r["quantity"],
-            "pair": rec.name, "measured_Hz": float(r["value"]), "computed_Hz": round(rec.average, 3),
-            "error_Hz": round(rec.average - float(r["value"]), 3), "source": f"{r['source']} [{r['flag']}]",
-        })
-    return out
-
-
-def hydroxymethyl_predictions(rows: list[dict[str, str]], analyses: Analyses) -> list[dict]:
-    """Check 2a: predicted ⟨J5,6R⟩, ⟨J5,6S⟩ against measured values."""
-    out = []
-    for r in rows:
-        if r["kind"] != "hydroxymethyl" or not r["smiles"] or not r["proton_a"]:
+        if r["kind"] != kind or not r["smiles"] or not r["proton_a"]:
             continue
         ens = analyses(r["smiles"], r["molecule"])
         rec = ens.couplings.find(r["proton_a"], r["proton_b"])
@@ -221,8 +208,8 @@ def main(argv: list[str] | None = None) -> int:
     analyses = Analyses()
     t0 = time.perf_counter()
     results = {
-        "ring_couplings": ring_couplings(rows, analyses),
-        "hydroxymethyl_predictions": hydroxymethyl_predictions(rows, analyses),
+        "ring_couplings": measured_couplings(rows, analyses, "coupling"),
+        "hydroxymethyl_predictions": measured_couplings(rows, analyses, "hydroxymethyl"),
         "hydroxymethyl_fits": hydroxymethyl_fits(rows, analyses),
         "trans_diaxial": trans_diaxial(rows, analyses),
         "cyclohexane": cyclohexane(rows, analyses),
