@@ -323,8 +323,9 @@ def _run_one(prepared, opts: AnalysisOptions):
         screen_above=screen,
     )
     distinct = deduplicate(mol, minimised, prepared.achiral)
+    n_refine_dup = 0
     if report.capped and not size_notes:  # the reduced search skips the rotor refinement
-        extra, n_extra = _refine_rotamers(mol, analysis, prepared, distinct, opts, screen)
+        extra, n_extra, n_refine_dup = _refine_rotamers(mol, analysis, prepared, distinct, opts, screen)
         minimised += extra
         n_min += n_extra
         distinct = deduplicate(mol, minimised, prepared.achiral)
@@ -358,6 +359,7 @@ def _run_one(prepared, opts: AnalysisOptions):
         "infeasible_combinations": report.n_infeasible,
         "placements_rejected_by_stereo": report.n_stereo_rejected,
         "duplicate_starts": report.n_duplicates,
+        "duplicate_refinement_starts": n_refine_dup,
         "duplicate_cores": report.n_duplicate_cores,
         "rotamer_cap": report.rotamer_cap,
         "starting_structures": len(report.starts),
@@ -397,9 +399,17 @@ def _refine_rotamers(mol, analysis, prepared, distinct, opts, screen: float):
     only if it gained a new low minimum in the round before. Seeding each family finds its lowest member even when another family holds all
     the low minima overall (an intramolecular hydrogen bond in one chair, say), so the
     ratio of the chair families does not depend on which family the capped product
-    happened to favour. Rounds stop when no family's set of low minima changes.
+    happened to favour. Rounds stop when no family's set of low minima changes. A move that
+    repeats a start of this or an earlier round (another seed turned into the same place,
+    within 0.05 Å as in the build) is not minimised again.
+
+    Returns
+    -------
+    tuple
+        New minimised structures, the number of minimisations, the number of repeated starts skipped.
     """
     from chairbuild.rotamers import rotamer_variations
+    from chairbuild.dedupe import StructureDeduplicator
     from chairbuild.describe import describe_conformer
     from chairbuild.families import family_keys
     from chairbuild.minimise import deduplicate, minimise_starts
@@ -428,8 +438,9 @@ def _refine_rotamers(mol, analysis, prepared, distinct, opts, screen: float):
         }
 
     extra = []
-    n_min = 0
+    n_min = n_dup = 0
     tried: set[float] = set()
+    seen_starts = StructureDeduplicator(mol, None, achiral=prepared.achiral, rmsd_threshold=0.05, all_polar_hydrogens=True)
     current = sorted(distinct, key=lambda m: m.energy)
     changed: set[str] | None = None  # families that gained a low minimum in the last round (None: all)
     for round_k in range(REFINE_ROUNDS):
@@ -445,7 +456,13 @@ def _refine_rotamers(mol, analysis, prepared, distinct, opts, screen: float):
         if not seeds:
             break
         tried.update(round(s.energy, 4) for s in seeds)
-        starts = rotamer_variations(mol, analysis, [s.coords for s in seeds], origin=f"refine{round_k + 1}")
+        starts = []
+        for start in rotamer_variations(mol, analysis, [s.coords for s in seeds], origin=f"refine{round_k + 1}"):
+            if seen_starts.is_duplicate(start.coords):
+                n_dup += 1
+            else:
+                seen_starts.add(start.coords)
+                starts.append(start)
         new, n = minimise_starts(
             mol,
             starts,
@@ -464,7 +481,7 @@ def _refine_rotamers(mol, analysis, prepared, distinct, opts, screen: float):
         changed = {k for k in after if not after[k] <= before.get(k, set())}
         if not changed:
             break
-    return extra, n_min
+    return extra, n_min, n_dup
 
 
 def _assemble_result(prepared, analysis, ranked, rejected, opts, outcome, build_notes, counts, timings):

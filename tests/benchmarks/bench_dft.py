@@ -17,10 +17,14 @@ Three measurements at the default DFT level (B3LYP-D3(BJ)/def2-SVP, C-PCM chloro
 3. **Refinement.** The whole analysis with the chain ``gfn2:optimise+frequencies,window=8`` →
    ``dft:single-point`` in chloroform (ALPB for GFN2-xTB, C-PCM for DFT) for three molecules, with
    ``--threads`` workers: wall time, time of each stage, number of single points, SCF cycles.
+4. **Cost per level.** One cold single point at each candidate level of ``tests/dft_levels.py``
+   (``CANDIDATES``) on the same geometries (both family minima of ``--cost-cases``, cases of the
+   accuracy set), side by side in one run: seconds, SCF cycles, basis functions, and the time
+   relative to the default level. With the accuracy table in the README this gives accuracy per cost.
 
 Target (issue "DFT refinement"): the warm start saves at least 30 % of the SCF cycles.
 Run: ``python tests/benchmarks/bench_dft.py [--molecules KEY,KEY] [--threads N] [--skip-conformers]
-[--skip-steps] [--skip-refinement]``. It is slow: a def2-SVP single point of these molecules takes
+[--skip-steps] [--skip-refinement] [--skip-levels] [--cost-cases KEY,KEY]``. It is slow: a def2-SVP single point of these molecules takes
 20–200 s on a loaded 2-core machine.
 """
 
@@ -177,6 +181,34 @@ def refinement(smiles: str, threads: int) -> dict:
     }
 
 
+def level_cost(case_keys: list[str], threads: int) -> dict:
+    """Seconds and SCF cycles of one cold single point per candidate level, same geometries for all."""
+    from chairbuild.forcefields.dft import DFTModel, DFTSettings
+    from tests.dft_levels import CANDIDATES, family_minima, load_cases
+
+    cases = {c.key: c for c in load_cases()}
+    unknown = [k for k in case_keys if k not in cases]
+    if unknown:
+        raise SystemExit(f"unknown case(s) {unknown}; choose from: {', '.join(cases)}")
+    rows: dict[str, dict] = {}
+    for key in case_keys:
+        case = cases[key]
+        mol, minima = family_minima(case.smiles, case.temperature)
+        for level, kwargs in CANDIDATES.items():
+            model = DFTModel(mol, DFTSettings(solvent=case.dft_solvent, **kwargs), threads=threads,
+                             reuse_density=False, label=key)
+            for coords, _ in minima:
+                t0 = time.perf_counter()
+                model.energy(coords)
+                row = rows.setdefault(level, {"seconds": 0.0, "cycles": 0, "single_points": 0, "nbf": []})
+                row["seconds"] += time.perf_counter() - t0
+                row["cycles"] += model.last_scf.cycles
+                row["single_points"] += 1
+            row["nbf"].append(model.n_basis_functions)
+            print(f"  {key}: {level} {row['seconds']:.1f} s so far", flush=True)
+    return rows
+
+
 def main(argv=None) -> int:
     p = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     p.add_argument("--molecules", default=",".join(MOLECULES), help="keys of MOLECULES for the refinement, comma-separated")
@@ -187,6 +219,9 @@ def main(argv=None) -> int:
     p.add_argument("--skip-conformers", action="store_true", help="leave out the neighbouring-conformer comparison")
     p.add_argument("--skip-steps", action="store_true", help="leave out the Hessian-step comparison")
     p.add_argument("--skip-refinement", action="store_true", help="leave out the refinement")
+    p.add_argument("--skip-levels", action="store_true", help="leave out the cost per candidate level")
+    p.add_argument("--cost-cases", default="CH3,2-fluorocyclohexanone CHCl3",
+                   help="cases of tests/dft_levels.py for the cost per level, comma-separated")
     p.add_argument("--basis", default=None, help="orbital basis instead of the default (a quick check of the script)")
     args = p.parse_args(argv)
     if args.basis:
@@ -215,6 +250,16 @@ def main(argv=None) -> int:
                   f"{r['single_points']:4d} {per_sp:8.1f} {r['scf_cycles']:6d} {r['conformers']:5d}")
         total = sum(r["wall_s"] for r in rows.values())
         print(f"{'all':24s} {total:7.1f}   formula: {next(iter(rows.values()))['formula']}", flush=True)
+    if not args.skip_levels:
+        cases = args.cost_cases.split(",")
+        print(f"\ncost per level: cold single points at both family minima of {', '.join(cases)}", flush=True)
+        rows = level_cost(cases, args.threads)
+        base = next(iter(rows.values()))
+        print(f"\n{'level':28s} {'SPs':>4s} {'basis functions':>15s} {'s per SP':>8s} {'cycles/SP':>9s} {'time ratio':>10s}")
+        for level, r in rows.items():
+            print(f"{level:28s} {r['single_points']:4d} {'/'.join(map(str, r['nbf'])):>15s} "
+                  f"{r['seconds'] / r['single_points']:8.1f} {r['cycles'] / r['single_points']:9.1f} "
+                  f"{r['seconds'] / base['seconds']:10.2f}", flush=True)
     return 0
 
 
