@@ -27,7 +27,6 @@ CANDIDATES = {
     "B3LYP-D3(BJ)/def2-SVP": dict(functional="b3lyp", basis="def2-svp"),
     "r2SCAN-D3(BJ)/def2-SVP": dict(functional="r2scan", basis="def2-svp"),
     "B3LYP-D3(BJ)/def2-TZVP": dict(functional="b3lyp", basis="def2-tzvp"),
-    "r2SCAN-D3(BJ)/def2-TZVP": dict(functional="r2scan", basis="def2-tzvp"),
 }
 #: Cases of the triple-zeta subset (cost: about 5x a def2-SVP single point).
 TZ_SUBSET = ("CH3", "piperidine N-H", "4-methyl-1,3-dioxane", "trans-1,2-difluorocyclohexane THF")

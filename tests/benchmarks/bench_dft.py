@@ -220,7 +220,7 @@ def main(argv=None) -> int:
     p.add_argument("--skip-steps", action="store_true", help="leave out the Hessian-step comparison")
     p.add_argument("--skip-refinement", action="store_true", help="leave out the refinement")
     p.add_argument("--skip-levels", action="store_true", help="leave out the cost per candidate level")
-    p.add_argument("--cost-cases", default="CH3,2-fluorocyclohexanone CHCl3",
+    p.add_argument("--cost-cases", default="CH3",
                    help="cases of tests/dft_levels.py for the cost per level, comma-separated")
     p.add_argument("--basis", default=None, help="orbital basis instead of the default (a quick check of the script)")
     args = p.parse_args(argv)
