@@ -25,6 +25,7 @@ from chairbuild.couplings.records import CouplingTable
 from chairbuild.describe import dihedral
 from chairbuild.errors import InputError
 from chairbuild.thermo import boltzmann_populations
+from tests.benchmarks.bench_coupling_errors import rotamer_states
 
 DATA = Path(__file__).parent / "data" / "couplings_measured.csv"
 GLUCOSIDE = "CO[C@@H]1O[C@H](CO)[C@@H](O)[C@H](O)[C@H]1O"  # methyl beta-D-glucopyranoside
@@ -172,18 +173,6 @@ def test_glucoside_ring_couplings_within_1_hz_of_measurement(glucoside):
                  "a beta-D-glucopyranosyl unit in CD3OD (PMC5430897 table 5, P)")
 
 
-def _rotamer_states(ens):
-    """Lowest conformer of each hydroxymethyl rotamer (gg, gt, tg: O6 relative to O5 and C4)."""
-    groups: dict[str, list] = {"gt": [], "gg": [], "tg": []}
-    for c in ens.conformers:
-        x = c.coords
-        o5 = dihedral(x[3], x[4], x[5], x[6])  # O5–C5–C6–O6 (atoms of GLUCOSIDE)
-        c4 = dihedral(x[7], x[4], x[5], x[6])  # C4–C5–C6–O6
-        key = "tg" if abs(o5) > 120 else ("gt" if abs(c4) > 120 else "gg")
-        groups[key].append(c)
-    return {k: [min(v, key=lambda c: c.relative_energy).id] for k, v in groups.items()}
-
-
 def _hydroxymethyl_sets():
     rows = _rows("hydroxymethyl")
     sets: dict[tuple[str, str], dict[str, str]] = {}
@@ -193,7 +182,7 @@ def _hydroxymethyl_sets():
 
 
 def test_hydroxymethyl_rotamer_populations_reproduce_the_published_hla_populations(glucoside):
-    states = _rotamer_states(glucoside)
+    states = rotamer_states(glucoside)
     # limiting couplings of the three rotamers (our HLA on MMFF geometries): gt has H5 antiperiplanar to H6R
     jr = glucoside.couplings.find("H4", "H5R")
     gt_index = [c.id for c in glucoside.conformers].index(states["gt"][0])

@@ -93,7 +93,7 @@ def measured_couplings(rows: list[dict[str, str]], analyses: Analyses, kind: str
     return out
 
 
-def _rotamer_states(ens) -> dict[str, list[int]]:
+def rotamer_states(ens) -> dict[str, list[int]]:
     """Lowest conformer of each hydroxymethyl rotamer of methyl β-D-glucopyranoside (O6 vs O5 and C4)."""
     from chairbuild.describe import dihedral
 
@@ -112,7 +112,7 @@ def hydroxymethyl_fits(rows: list[dict[str, str]], analyses: Analyses) -> list[d
     from chairbuild.couplings.fit import Measurement, fit_couplings
 
     ens = analyses(GLUCOSIDE, "methyl beta-D-glucopyranoside")
-    states = _rotamer_states(ens)
+    states = rotamer_states(ens)
     sets: dict[tuple[str, str], dict[str, str]] = {}
     for r in rows:
         if r["kind"] == "hydroxymethyl":
