@@ -21,6 +21,10 @@ def test_every_etkdg_minimum_within_12_kj_is_found(name, smiles):
     ensemble = analyze(smiles, threads=1)
     reference = etkdg_reference(prepared.mol, n=500, seed=42, window_kj=12.0, achiral=prepared.achiral)
     missing = missing_minima(ensemble, reference, prepared.achiral)
+    if name == "cis-4-(2-hydroxyethoxy)-N-methylcyclohexanemethanamine":
+        # its rotor refinement turns different seeds into the same start; each is minimised once
+        # (104 repeats skipped when measured, none before the refinement screened its starts)
+        assert ensemble.provenance["counts"]["duplicate_refinement_starts"] > 0
     assert not missing, (
         f"{name}: {len(missing)} of {len(reference.minima)} ETKDG minima missing, at "
         + ", ".join(f"{m.energy_kj - reference.minima[0].energy_kj:.2f} kJ/mol" for m in missing)
